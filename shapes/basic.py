@@ -1,0 +1,59 @@
+"""Test grid, crosshair and circle, sized from the screen's usable area."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from vectorgen.strokes import Strokes, strokes_from_polylines
+
+
+def circle_points(radius: float, center=(0.0, 0.0), tolerance_mm: float = 0.02) -> np.ndarray:
+    """A closed polyline on a circle whose chords stay within `tolerance_mm` of it."""
+    step = 2.0 * np.arccos(max(-1.0, 1.0 - tolerance_mm / radius)) if radius > 0 else np.pi
+    n = int(np.clip(np.ceil(2 * np.pi / min(step, np.radians(10.0))), 8, 100_000))
+    t = np.linspace(0.0, 2.0 * np.pi, n + 1)
+    t[-1] = 0.0      # close exactly on the first point
+    return np.column_stack([center[0] + radius * np.cos(t), center[1] + radius * np.sin(t)])
+
+
+def circle(screen, radius: float | None = None, tolerance_mm: float = 0.02) -> Strokes:
+    """A circle centred on the screen; default radius 90 % of the largest that fits."""
+    if radius is None:
+        radius = 0.9 * min(screen.half_extent)
+    return strokes_from_polylines([circle_points(radius, tolerance_mm=tolerance_mm)],
+                                  labels=[f"circle r={radius:g} mm"])
+
+
+def crosshair(screen, arm: float | None = None) -> Strokes:
+    """Horizontal and vertical lines through the centre, plus a centre dot."""
+    w, h = screen.half_extent
+    ax = arm if arm is not None else 0.9 * w
+    ay = arm if arm is not None else 0.9 * h
+    return strokes_from_polylines(
+        [[(-ax, 0.0), (ax, 0.0)], [(0.0, -ay), (0.0, ay)], [(0.0, 0.0)]],
+        labels=["crosshair horizontal", "crosshair vertical", "crosshair centre"])
+
+
+def grid_positions(screen, step: float) -> tuple[np.ndarray, np.ndarray]:
+    """Grid line positions (mm) on each axis: multiples of `step` through the centre that lie
+    inside the usable area."""
+    w, h = screen.half_extent
+    xs = np.arange(-np.floor(w / step), np.floor(w / step) + 1) * step
+    ys = np.arange(-np.floor(h / step), np.floor(h / step) + 1) * step
+    return xs, ys
+
+
+def grid(screen, step: float = 10.0) -> Strokes:
+    """Lines every `step` mm through the centre and a dot at every crossing, all at known
+    millimetre positions. On a round face the lines are cut to the circle by the engine."""
+    if not step > 0:
+        from vectorgen.errors import VectorgenError
+        raise VectorgenError(f"grid step must be > 0 mm (got {step})")
+    xs, ys = grid_positions(screen, step)
+    w, h = screen.half_extent
+    lines = [[(x, -h), (x, h)] for x in xs] + [[(-w, y), (w, y)] for y in ys]
+    labels = [f"grid line x={x:g} mm" for x in xs] + [f"grid line y={y:g} mm" for y in ys]
+    gx, gy = np.meshgrid(xs, ys)
+    dots = [[(x, y)] for x, y in zip(gx.ravel(), gy.ravel())]
+    labels += [f"grid dot ({x:g}, {y:g}) mm" for x, y in zip(gx.ravel(), gy.ravel())]
+    return strokes_from_polylines(lines + dots, labels=labels)

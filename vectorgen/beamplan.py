@@ -1,0 +1,258 @@
+"""Beam plan: where the spot is at every sample of one frame, and whether it is lit.
+
+* Strokes are ordered to keep blanked travel short (greedy nearest end, open strokes may be
+  drawn backwards).
+* Each stroke is cut at its sharp corners into pieces; each piece is resampled to evenly spaced
+  points along its arc length (spacing = writing speed / sample rate, rounded per piece so a
+  sample lands exactly on every corner), all strokes at once with numpy.interp on one global
+  arc-length axis.
+* Dwells: the start and end of each stroke and every sharp corner hold the spot for a few
+  samples, so they come out bright and square; a dot (one-point stroke) dwells longer.
+* Between strokes the spot jumps blanked in as few samples as the jump speed allows, then
+  settles (blanked) at the next start. The frame ends with the jump back to its first stroke,
+  so frames repeat seamlessly.
+
+In `target_samples` mode the frame is fitted into exactly N samples: the dwells, jumps and
+settles keep their lengths and the drawing's samples are shared out by arc length.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import VectorgenError
+from .strokes import Strokes
+
+GAP = 1.0  # arc-length gap between strokes on the global axis (any positive number works)
+
+
+@dataclass
+class Timing:
+    """Beam timing in samples, worked out from the profile for one sample rate."""
+    rate: int
+    spacing_mm: float           # writing speed / rate
+    jump_step_mm: float         # jump speed / rate
+    settle: int
+    end_dwell: int
+    corner_dwell: int
+    dot_dwell: int
+    corner_angle_deg: float
+
+    @classmethod
+    def from_beam(cls, beam, rate: int, writing_speed: float | None = None) -> "Timing":
+        def samples(us):
+            return int(round(us * 1e-6 * rate))
+        speed = beam.writing_speed_mm_per_s if writing_speed is None else writing_speed
+        return cls(rate, speed / rate, beam.jump_speed_mm_per_s / rate,
+                   samples(beam.settle_us), max(1, samples(beam.end_dwell_us)),
+                   samples(beam.corner_dwell_us), max(1, samples(beam.dot_dwell_us)),
+                   beam.corner_angle_deg)
+
+
+@dataclass
+class Plan:
+    points: np.ndarray          # (n, 2) spot position in mm at every sample
+    lit: np.ndarray             # (n,) bool: beam on
+    intensity: np.ndarray       # (n,) brightness 0..1 (0 where blanked)
+    stroke: np.ndarray          # (n,) index into `strokes` of each lit sample, -1 when blanked
+    strokes: Strokes            # the strokes in the order drawn
+    drawn_length_mm: float
+    moving_samples: int         # lit samples that advance along a stroke (no dwells)
+    blanked_moves: int
+    blanked_length_mm: float
+    corners: int
+
+    @property
+    def samples(self) -> int:
+        return len(self.lit)
+
+
+def order_strokes(strokes: Strokes) -> Strokes:
+    """Greedy nearest-neighbour order from the first stroke; open strokes may be reversed."""
+    S = strokes.count
+    if S <= 2:
+        return strokes
+    offs = strokes.offsets
+    starts = strokes.points[offs[:-1]]
+    ends = strokes.points[offs[1:] - 1]
+    closed = np.all(starts == ends, axis=1)
+    ids = np.arange(S)
+    order = np.empty(S, dtype=np.int64)
+    flip = np.zeros(S, dtype=bool)
+    order[0] = 0
+    cur = ends[0]
+    live = ids[1:]
+    used = 1
+    while live.size:
+        ds = np.sum((starts[live] - cur) ** 2, axis=1)
+        de = np.sum((ends[live] - cur) ** 2, axis=1)
+        de[closed[live]] = np.inf
+        js, je = int(np.argmin(ds)), int(np.argmin(de))
+        if de[je] < ds[js]:
+            j, rev = je, True
+        else:
+            j, rev = js, False
+        pick = live[j]
+        order[used], flip[used] = pick, rev
+        cur = starts[pick] if rev else ends[pick]
+        used += 1
+        live = np.delete(live, j)
+    # Rebuild the packed arrays in the new order (reversed strokes flipped) with index maps.
+    counts = np.diff(offs)[order]
+    new_offs = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    within = np.arange(new_offs[-1]) - np.repeat(new_offs[:-1], counts)
+    src_first = np.repeat(offs[:-1][order], counts)
+    src_last = np.repeat(offs[1:][order] - 1, counts)
+    f = np.repeat(flip[:S], counts)
+    src = np.where(f, src_last - within, src_first + within)
+    return Strokes(strokes.points[src], new_offs, strokes.intensity[order],
+                   [strokes.labels[i] for i in order])
+
+
+def _apportion(budget: int, lengths: np.ndarray) -> np.ndarray:
+    """Integers >= 1 summing to `budget`, proportional to `lengths` (largest remainder)."""
+    P = len(lengths)
+    if budget < P:
+        raise ValueError
+    total = lengths.sum()
+    ideal = (budget - P) * lengths / total if total > 0 else np.full(P, (budget - P) / P)
+    n = np.floor(ideal).astype(np.int64)
+    rest = budget - P - int(n.sum())
+    if rest > 0:
+        n[np.argsort(-(ideal - n), kind="stable")[:rest]] += 1
+    return n + 1
+
+
+def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = None,
+               reorder: bool = True) -> Plan:
+    """The beam plan for one frame of `strokes` (mm, already clipped to the screen)."""
+    if strokes.count == 0:
+        raise VectorgenError("nothing to draw: the drawing is empty (or wholly off the screen)")
+    if reorder:
+        strokes = order_strokes(strokes)
+    pts, offs = strokes.points, strokes.offsets
+    S, P = strokes.count, len(pts)
+    first, last = offs[:-1], offs[1:] - 1
+    stroke_of_vertex = np.repeat(np.arange(S), np.diff(offs))
+
+    # Global arc-length axis: strokes laid end to end with a gap between them.
+    seg = np.hypot(*np.diff(pts, axis=0).T) if P > 1 else np.zeros(0)
+    if P > 1:
+        seg[last[:-1]] = GAP
+    s = np.concatenate([[0.0], np.cumsum(seg)])
+    lengths = s[last] - s[first]
+
+    # Sharp corners (interior vertices only).
+    sharp = np.zeros(P, dtype=bool)
+    interior = np.ones(P, dtype=bool)
+    interior[first] = False
+    interior[last] = False
+    iv = np.flatnonzero(interior)
+    if iv.size:
+        d1 = pts[iv] - pts[iv - 1]
+        d2 = pts[iv + 1] - pts[iv]
+        cosang = np.einsum("ij,ij->i", d1, d2) / (np.hypot(*d1.T) * np.hypot(*d2.T))
+        turn = np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0)))
+        sharp[iv] = turn > timing.corner_angle_deg
+
+    # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke.
+    boundary = np.zeros(P, dtype=bool)
+    boundary[first] = True
+    boundary[last] = True
+    boundary |= sharp
+    bidx = np.flatnonzero(boundary)
+    a, b = bidx[:-1], bidx[1:]
+    keep = (stroke_of_vertex[a] == stroke_of_vertex[b]) & (a != b)
+    a, b = a[keep], b[keep]
+    piece_stroke = stroke_of_vertex[a]
+    piece_len = s[b] - s[a]
+    piece_last = b == last[piece_stroke]
+    piece_rep = np.where(piece_last, timing.end_dwell, timing.corner_dwell)
+
+    is_dot = lengths == 0
+    start_rep = np.where(is_dot, timing.dot_dwell, timing.end_dwell)
+
+    # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).
+    nxt = np.roll(np.arange(S), -1)
+    jump_from = pts[last]
+    jump_to = pts[first[nxt]]
+    jump_len = np.hypot(*(jump_to - jump_from).T)
+    jumps = np.where(jump_len > 0, np.maximum(1, np.ceil(jump_len / timing.jump_step_mm)), 0)
+    jumps = jumps.astype(np.int64)
+    settles = np.where(jumps > 0, timing.settle, 0)
+
+    if target_samples is None:
+        piece_n = np.maximum(1, np.round(piece_len / timing.spacing_mm)).astype(np.int64)
+    else:
+        fixed = int(start_rep.sum() + piece_rep.sum() + jumps.sum() + settles.sum())
+        budget = int(target_samples) - fixed
+        if len(piece_len) == 0:
+            if budget < 0:
+                raise VectorgenError(f"a frame of {target_samples} samples is too short for "
+                                     f"this drawing: it needs at least {fixed}")
+            # Only dots: share the spare samples out as longer dwells.
+            extra = _apportion(budget + S, np.ones(S)) - 1
+            start_rep = start_rep + extra
+            piece_n = np.zeros(0, dtype=np.int64)
+        else:
+            try:
+                piece_n = _apportion(budget, piece_len)
+            except ValueError:
+                raise VectorgenError(
+                    f"a frame of {target_samples} samples is too short for this drawing: it "
+                    f"needs at least {fixed + len(piece_len)} (dwells, jumps and settles take "
+                    f"{fixed}); lower the refresh rate or raise the sample count") from None
+
+    # Lit blocks in drawing order: a start block per stroke, then its pieces.
+    # Block: param = base + step * min(k + 1, n_move) for k in 0 .. n_move + n_rep - 1.
+    blk_key = np.concatenate([2 * first, 2 * a + 1])
+    blk_base = np.concatenate([s[first], s[a]])
+    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1)])
+    blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n])
+    blk_rep = np.concatenate([start_rep, piece_rep]).astype(np.int64)
+    blk_stroke = np.concatenate([np.arange(S), piece_stroke])
+    o = np.argsort(blk_key, kind="stable")
+    blk_base, blk_step, blk_move, blk_rep, blk_stroke = (
+        blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o])
+    blk_size = blk_move + blk_rep
+    lit_total = int(blk_size.sum())
+    blk = np.repeat(np.arange(len(blk_size)), blk_size)
+    k = np.arange(lit_total) - np.repeat(np.cumsum(blk_size) - blk_size, blk_size)
+    param = blk_base[blk] + blk_step[blk] * np.minimum(k + 1, blk_move[blk])
+    lit_xy = np.column_stack([np.interp(param, s, pts[:, 0]), np.interp(param, s, pts[:, 1])])
+    lit_stroke = blk_stroke[blk]
+
+    # Blanked blocks: jump samples then settle samples at the destination.
+    blank_size = jumps + settles
+    blank_total = int(blank_size.sum())
+    bj = np.repeat(np.arange(S), blank_size)
+    kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
+    frac = np.minimum(kb + 1, jumps[bj]) / np.maximum(jumps[bj], 1)
+    blank_xy = jump_from[bj] + (jump_to[bj] - jump_from[bj]) * frac[:, None]
+
+    # Interleave: stroke i's lit samples, then its jump to stroke i + 1.
+    lit_count = np.bincount(lit_stroke, minlength=S)
+    per = lit_count + blank_size
+    frame_start = np.cumsum(per) - per
+    lit_dest = (np.arange(lit_total) - np.repeat(np.cumsum(lit_count) - lit_count, lit_count)
+                + np.repeat(frame_start, lit_count))
+    blank_dest = kb + np.repeat(frame_start + lit_count, blank_size)
+    n = lit_total + blank_total
+    points = np.empty((n, 2))
+    points[lit_dest] = lit_xy
+    points[blank_dest] = blank_xy
+    lit = np.zeros(n, dtype=bool)
+    lit[lit_dest] = True
+    stroke_idx = np.full(n, -1, dtype=np.int64)
+    stroke_idx[lit_dest] = lit_stroke
+    intensity = np.zeros(n)
+    intensity[lit_dest] = strokes.intensity[lit_stroke]
+
+    return Plan(points, lit, intensity, stroke_idx, strokes,
+                drawn_length_mm=float(lengths.sum()),
+                moving_samples=int(piece_n.sum()),
+                blanked_moves=int((jumps > 0).sum()),
+                blanked_length_mm=float(jump_len.sum()),
+                corners=int(sharp.sum()))

@@ -1,0 +1,93 @@
+"""The deflection model: drive (full-scale units) <-> position on the tube face (mm).
+
+Forward:  p = D(q),  q = A u + c
+  D: x' = x (1 + k_r rho^2 + k_x yh^2),  y' = y (1 + k_r rho^2 + k_y xh^2)
+     with xh = x / R, yh = y / R, rho^2 = xh^2 + yh^2, R the usable area's half-diagonal.
+Inverse (the correction stage): q = D^-1(p) by vectorised Newton iterations, u = A^-1 (q - c).
+
+Everything is array-in/array-out: points are (n, 2) float arrays.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import VectorgenError
+
+
+@dataclass(frozen=True)
+class DeflectionModel:
+    matrix: np.ndarray          # A, (2, 2), mm per full-scale drive
+    offset: np.ndarray          # c, (2,), mm
+    k_radial: float = 0.0
+    k_x: float = 0.0
+    k_y: float = 0.0
+    norm_radius: float = 1.0    # R, mm
+
+    @classmethod
+    def from_profile(cls, prof) -> "DeflectionModel":
+        d = prof.deflection
+        return cls(np.asarray(d.matrix_mm, dtype=float), np.asarray(d.offset_mm, dtype=float),
+                   float(d.k_radial), float(d.k_x), float(d.k_y), float(prof.screen.norm_radius))
+
+    @property
+    def has_distortion(self) -> bool:
+        return bool(self.k_radial or self.k_x or self.k_y)
+
+    # -- distortion D and its Jacobian -----------------------------------------------------------
+    def distort(self, q: np.ndarray) -> np.ndarray:
+        q = np.asarray(q, dtype=float)
+        if not self.has_distortion:
+            return q.copy()
+        xh = q[..., 0] / self.norm_radius
+        yh = q[..., 1] / self.norm_radius
+        r2 = xh * xh + yh * yh
+        out = np.empty_like(q)
+        out[..., 0] = q[..., 0] * (1.0 + self.k_radial * r2 + self.k_x * yh * yh)
+        out[..., 1] = q[..., 1] * (1.0 + self.k_radial * r2 + self.k_y * xh * xh)
+        return out
+
+    def undistort(self, p: np.ndarray, tol_mm: float = 1e-9, max_iter: int = 50) -> np.ndarray:
+        """D^-1 by Newton's method, all points at once; converges to well below 1 um."""
+        p = np.asarray(p, dtype=float)
+        if not self.has_distortion:
+            return p.copy()
+        R2 = self.norm_radius ** 2
+        kr, kx, ky = self.k_radial, self.k_x, self.k_y
+        # First guess: divide by the local scale factor evaluated at p.
+        q = p.copy()
+        x, y = q[..., 0], q[..., 1]
+        for _ in range(max_iter):
+            x2, y2 = x * x / R2, y * y / R2
+            fx = 1.0 + kr * (x2 + y2) + kx * y2
+            fy = 1.0 + kr * (x2 + y2) + ky * x2
+            rx = x * fx - p[..., 0]
+            ry = y * fy - p[..., 1]
+            # Jacobian of (x fx, y fy)
+            j11 = fx + x * (2.0 * kr * x / R2)
+            j12 = x * (2.0 * (kr + kx) * y / R2)
+            j21 = y * (2.0 * (kr + ky) * x / R2)
+            j22 = fy + y * (2.0 * kr * y / R2)
+            det = j11 * j22 - j12 * j21
+            dx = (rx * j22 - ry * j12) / det
+            dy = (ry * j11 - rx * j21) / det
+            x = x - dx
+            y = y - dy
+            if np.all(np.abs(dx) + np.abs(dy) < tol_mm):
+                break
+        out = np.stack([x, y], axis=-1)
+        if not np.all(np.isfinite(out)):
+            raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
+                                 "drawing (check k_radial, k_x, k_y)")
+        return out
+
+    # -- full model ------------------------------------------------------------------------------
+    def drive_to_mm(self, u: np.ndarray) -> np.ndarray:
+        u = np.asarray(u, dtype=float)
+        return self.distort(u @ self.matrix.T + self.offset)
+
+    def mm_to_drive(self, p: np.ndarray) -> np.ndarray:
+        q = self.undistort(p)
+        return np.linalg.solve(self.matrix, (q - self.offset).reshape(-1, 2).T).T.reshape(q.shape)

@@ -1,0 +1,217 @@
+"""Geometry: curves to polylines (adaptive, vectorised), fitting into the screen, clipping.
+
+Flattening works on whole arrays of segments of one kind at a time; the number of chords per
+segment follows from a bound on the chord error, so no per-sample svgpathtools call is made:
+  * quadratic/cubic Bezier, uniform steps in t: error <= max|B''| / (8 n^2)
+  * elliptical arc, uniform steps in the parametric angle: error <= max(rx, ry)(1 - cos(d/2))
+and every curve is also cut into steps turning at most MAX_TURN_DEG, so that flattened curves
+never look like sharp corners to the beam planner.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .errors import VectorgenError
+from .strokes import Strokes
+
+MAX_TURN_DEG = 10.0
+MAX_CHORDS = 100_000        # per segment; more means the tolerance is absurd for the drawing
+
+
+def _counts_from_bound(second_deriv_max: np.ndarray, tol: float) -> np.ndarray:
+    return np.ceil(np.sqrt(second_deriv_max / (8.0 * tol))).astype(np.int64)
+
+
+def bezier_points(ctrl: np.ndarray, t: np.ndarray) -> np.ndarray:
+    """Evaluate Beziers given per-point control points ctrl (m, k+1) complex at t (m,)."""
+    k = ctrl.shape[1] - 1
+    s = 1.0 - t
+    if k == 1:
+        return s * ctrl[:, 0] + t * ctrl[:, 1]
+    if k == 2:
+        return s * s * ctrl[:, 0] + 2 * s * t * ctrl[:, 1] + t * t * ctrl[:, 2]
+    return (s ** 3 * ctrl[:, 0] + 3 * s * s * t * ctrl[:, 1] + 3 * s * t * t * ctrl[:, 2]
+            + t ** 3 * ctrl[:, 3])
+
+
+def _bezier_turn_counts(ctrl: np.ndarray) -> np.ndarray:
+    """Chords needed so each turns <= MAX_TURN_DEG: total turning estimated on 32 steps."""
+    t = np.linspace(0.0, 1.0, 33)
+    k = ctrl.shape[1] - 1
+    d = k * np.diff(ctrl, axis=1)       # derivative control points
+    tt = np.broadcast_to(t, (len(ctrl), len(t)))
+    if k == 2:
+        deriv = (1 - tt) * d[:, :1] + tt * d[:, 1:2]
+    else:
+        deriv = ((1 - tt) ** 2 * d[:, :1] + 2 * (1 - tt) * tt * d[:, 1:2] + tt ** 2 * d[:, 2:3])
+    ang = np.angle(deriv)
+    turn = np.abs(np.angle(np.exp(1j * np.diff(ang, axis=1)))).sum(axis=1)
+    return np.ceil(np.degrees(turn) / MAX_TURN_DEG).astype(np.int64)
+
+
+def flatten_beziers(ctrl: np.ndarray, tol: float) -> tuple[np.ndarray, np.ndarray]:
+    """Flatten m Beziers of one degree (ctrl (m, k+1) complex). Returns (points complex,
+    counts) where segment j contributes counts[j] points: t in (0, 1], start point excluded."""
+    k = ctrl.shape[1] - 1
+    if k == 1:
+        n = np.ones(len(ctrl), dtype=np.int64)
+    else:
+        second = np.abs(ctrl[:, :-2] - 2 * ctrl[:, 1:-1] + ctrl[:, 2:]).max(axis=1) * k * (k - 1)
+        n = np.maximum(_counts_from_bound(second, tol), _bezier_turn_counts(ctrl))
+        n = np.clip(n, 1, MAX_CHORDS)
+    seg = np.repeat(np.arange(len(ctrl)), n)
+    idx = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n) + 1
+    t = idx / n[seg]
+    return bezier_points(ctrl[seg], t), n
+
+
+def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.ndarray,
+                 theta0: np.ndarray, delta: np.ndarray, tol: float):
+    """Flatten m elliptical arcs (angles in radians; rot = ellipse rotation). Same output
+    convention as flatten_beziers. The last point of each arc is its exact end angle."""
+    r = np.maximum(rx, ry)
+    cos_arg = np.clip(1.0 - tol / np.maximum(r, 1e-300), -1.0, 1.0)
+    step = np.minimum(2.0 * np.arccos(cos_arg), np.radians(MAX_TURN_DEG))
+    step = np.where(step > 0, step, np.radians(MAX_TURN_DEG))
+    n = np.clip(np.ceil(np.abs(delta) / step).astype(np.int64), 1, MAX_CHORDS)
+    seg = np.repeat(np.arange(len(center)), n)
+    idx = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n) + 1
+    ang = theta0[seg] + delta[seg] * (idx / n[seg])
+    local = rx[seg] * np.cos(ang) + 1j * ry[seg] * np.sin(ang)
+    return center[seg] + local * np.exp(1j * rot[seg]), n
+
+
+def flatten_path_segments(segments, tol: float) -> np.ndarray:
+    """Flatten a continuous run of svgpathtools segments to an (n, 2) polyline."""
+    from svgpathtools import Arc, CubicBezier, Line, QuadraticBezier
+
+    m = len(segments)
+    kinds = np.empty(m, dtype=np.int8)
+    lines, quads, cubics, arcs = [], [], [], []
+    for j, s in enumerate(segments):
+        if isinstance(s, Line):
+            kinds[j] = 1
+            lines.append((s.start, s.end))
+        elif isinstance(s, QuadraticBezier):
+            kinds[j] = 2
+            quads.append((s.start, s.control, s.end))
+        elif isinstance(s, CubicBezier):
+            kinds[j] = 3
+            cubics.append((s.start, s.control1, s.control2, s.end))
+        elif isinstance(s, Arc):
+            kinds[j] = 4
+            arcs.append((s.center, s.radius.real, s.radius.imag, np.radians(s.rotation),
+                         np.radians(s.theta), np.radians(s.delta), s.end))
+        else:  # pragma: no cover - svgpathtools has no other kinds
+            raise VectorgenError(f"unsupported path segment {type(s).__name__}")
+    chunks = [None] * m
+    for kind, data in ((1, lines), (2, quads), (3, cubics)):
+        if data:
+            pts, n = flatten_beziers(np.array(data, dtype=complex), tol)
+            _scatter(chunks, np.flatnonzero(kinds == kind), pts, n)
+    if arcs:
+        a = np.array(arcs, dtype=complex)
+        pts, n = flatten_arcs(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
+                              a[:, 5].real, tol)
+        pts[np.cumsum(n) - 1] = a[:, 6]      # land exactly on each arc's end point
+        _scatter(chunks, np.flatnonzero(kinds == 4), pts, n)
+    z = np.concatenate([[segments[0].start]] + chunks)
+    return np.column_stack([z.real, z.imag])
+
+
+def _scatter(chunks, where, pts, n):
+    ends = np.cumsum(n)
+    for j, a, b in zip(where, ends - n, ends):
+        chunks[j] = pts[a:b]
+
+
+def polyline_length(points: np.ndarray) -> float:
+    return float(np.hypot(*np.diff(points, axis=0).T).sum()) if len(points) > 1 else 0.0
+
+
+# --- fitting ------------------------------------------------------------------------------------
+
+def fit_transform(box: tuple[float, float, float, float], screen, flip_y: bool = True):
+    """Matrix and offset mapping the rectangle `box` (x0, y0, x1, y1, source units) into the
+    usable area, aspect ratio kept, centred; y flipped when the source has +y down (SVG)."""
+    x0, y0, x1, y1 = box
+    bw, bh = x1 - x0, y1 - y0
+    if screen.shape == "round":
+        diag = np.hypot(bw, bh)
+        s = screen.diameter_mm / diag if diag > 0 else 1.0
+    else:
+        cand = [v for v in ((screen.width_mm / bw) if bw > 0 else None,
+                            (screen.height_mm / bh) if bh > 0 else None) if v is not None]
+        s = min(cand) if cand else 1.0
+    sy = -s if flip_y else s
+    m = np.array([[s, 0.0], [0.0, sy]])
+    cx, cy = (x0 + x1) / 2.0, (y0 + y1) / 2.0
+    return m, -m @ np.array([cx, cy])
+
+
+# --- clipping -----------------------------------------------------------------------------------
+
+def area_polygon(screen):
+    import shapely
+
+    if screen.shape == "round":
+        return shapely.Point(0.0, 0.0).buffer(screen.diameter_mm / 2.0, quad_segs=256)
+    w, h = screen.half_extent
+    return shapely.box(-w, -h, w, h)
+
+
+def inside_mask(points: np.ndarray, screen, eps: float = 1e-9) -> np.ndarray:
+    if screen.shape == "round":
+        r = screen.diameter_mm / 2.0
+        return np.hypot(points[:, 0], points[:, 1]) <= r * (1 + eps)
+    w, h = screen.half_extent
+    return (np.abs(points[:, 0]) <= w * (1 + eps)) & (np.abs(points[:, 1]) <= h * (1 + eps))
+
+
+def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
+    """Cut every stroke at the edge of the usable area. Strokes wholly inside pass untouched
+    (checked with numpy); only strokes that cross the edge go through shapely. Returns the
+    clipped drawing and the number of strokes that were cut or dropped."""
+    if not strokes.count:
+        return strokes, 0
+    inside = inside_mask(strokes.points, screen)
+    all_in = np.logical_and.reduceat(inside, strokes.offsets[:-1])
+    if all_in.all():
+        return strokes, 0
+    import shapely
+
+    area = area_polygon(screen)
+    polys, inten, labels = [], [], []
+    for i in range(strokes.count):
+        pts = strokes.stroke(i)
+        if all_in[i]:
+            pieces = [pts]
+        else:
+            geom = shapely.Point(pts[0]) if len(pts) == 1 else shapely.LineString(pts)
+            pieces = _line_parts(shapely.intersection(geom, area))
+            closed = len(pts) > 2 and np.array_equal(pts[0], pts[-1])
+            if closed and len(pieces) > 1 and np.allclose(pieces[0][0], pts[0]) \
+                    and np.allclose(pieces[-1][-1], pts[-1]):
+                # shapely cuts a closed stroke at its start point: join the two ends again
+                pieces = [np.concatenate([pieces[-1], pieces[0][1:]])] + pieces[1:-1]
+        polys.extend(pieces)
+        inten.extend([strokes.intensity[i]] * len(pieces))
+        labels.extend([strokes.labels[i]] * len(pieces))
+    from .strokes import strokes_from_polylines
+
+    out = strokes_from_polylines(polys, np.array(inten), labels)
+    return out, int((~all_in).sum())
+
+
+def _line_parts(geom) -> list:
+    if geom.is_empty:
+        return []
+    kind = geom.geom_type
+    if kind in ("LineString", "LinearRing"):
+        return [np.asarray(geom.coords)]
+    if kind == "Point":
+        return [np.asarray(geom.coords)]
+    if kind.startswith("Multi") or kind == "GeometryCollection":
+        return [p for g in geom.geoms for p in _line_parts(g)]
+    return []

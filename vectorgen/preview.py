@@ -1,0 +1,90 @@
+"""Phosphor preview: a picture of what the tube will show, made from the actual output samples.
+
+The channel signal is mapped back to drive (channel order and polarity undone) and through the
+profile's forward deflection model to millimetres on the face. Brightness is proportional to
+the time the spot spends on each pixel (samples are joined by straight sweeps, as the beam
+moves between them), spread by a Gaussian spot; blanked samples are dark; the usable area is
+outlined faintly.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .deflection import DeflectionModel
+from .signal import from_channels
+
+MAX_SWEEP_STEPS = 16
+
+
+def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray | None = None,
+                   width_px: int = 800, spot_mm: float = 0.35, margin: float = 0.06) -> np.ndarray:
+    """An (h, w, 3) uint8 RGB image. `lit` marks beam-on samples where there is no Z channel."""
+    from scipy.ndimage import gaussian_filter
+
+    drive, z = from_channels(signal, profile.output, channels)
+    weight = z if z is not None else (np.ones(len(drive)) if lit is None else lit.astype(float))
+    pts = DeflectionModel.from_profile(profile).drive_to_mm(drive)
+
+    hw, hh = profile.screen.half_extent
+    hw, hh = hw * (1 + margin), hh * (1 + margin)
+    px_per_mm = width_px / (2 * hw)
+    height_px = max(1, int(round(2 * hh * px_per_mm)))
+
+    # Sweeps between consecutive samples: lit only when both ends are lit.
+    if len(pts) > 1:
+        step_px = np.hypot(*np.diff(pts, axis=0).T) * px_per_mm
+        k = int(np.clip(np.ceil(np.percentile(step_px, 99)), 1, MAX_SWEEP_STEPS))
+        f = (np.arange(k) / k)[None, :, None]
+        sweep = pts[:-1, None, :] + np.diff(pts, axis=0)[:, None, :] * f
+        w = np.minimum(weight[:-1], weight[1:])[:, None] * np.ones((1, k)) / k
+        xy = sweep.reshape(-1, 2)
+        wt = w.ravel()
+    else:
+        xy, wt = pts, weight
+    col = (xy[:, 0] + hw) * px_per_mm
+    row = (hh - xy[:, 1]) * px_per_mm
+    img, _, _ = np.histogram2d(row, col, bins=(height_px, width_px),
+                               range=((0, height_px), (0, width_px)), weights=wt)
+    img = gaussian_filter(img, sigma=max(spot_mm * px_per_mm / 2.0, 0.5))
+    peak = np.percentile(img[img > 0], 99.5) if np.any(img > 0) else 1.0
+    v = 1.0 - np.exp(-2.5 * img / peak)         # phosphor saturation
+    rgb = np.stack([0.35 * v ** 2, v, 0.45 * v ** 2], axis=-1)
+
+    # Usable-area outline, faint grey.
+    out = profile.screen.outline(2000)
+    dense = np.concatenate([np.linspace(out[i], out[i + 1], 400) for i in range(len(out) - 1)])
+    oc = np.clip(((dense[:, 0] + hw) * px_per_mm).astype(int), 0, width_px - 1)
+    orow = np.clip(((hh - dense[:, 1]) * px_per_mm).astype(int), 0, height_px - 1)
+    rgb[orow, oc] = np.maximum(rgb[orow, oc], 0.22)
+    return (np.clip(rgb, 0, 1) * 255).astype(np.uint8)
+
+
+def write_png(path: str, rgb: np.ndarray) -> None:
+    from PIL import Image
+
+    from .sinks import atomic_write
+
+    atomic_write(path, lambda fh: Image.fromarray(rgb).save(fh, format="PNG"))
+
+
+def write_signal_plot(path: str, signal: np.ndarray, names: list, rate: int) -> None:
+    """X, Y (and Z) against time for one frame, as PNG."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    from .sinks import atomic_write
+
+    t_ms = np.arange(len(signal)) / rate * 1e3
+    fig = Figure(figsize=(9, 1.6 * len(names) + 0.6), dpi=100)
+    axes = fig.subplots(len(names), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, j in zip(axes, range(len(names))):
+        ax.plot(t_ms, signal[:, j], lw=0.8, drawstyle="steps-post")
+        ax.set_ylabel(names[j].upper())
+        ax.set_ylim(-1.05, 1.05)
+        ax.grid(alpha=0.3)
+    axes[-1].set_xlabel("time (ms)")
+    fig.tight_layout()
+    atomic_write(path, lambda fh: fig.savefig(fh, format="png"))

@@ -1,0 +1,117 @@
+"""The drawing handed from every source to the engine: strokes as packed polylines in mm.
+
+A `Strokes` holds all polylines of a drawing in one (P, 2) array with offsets, so the engine
+works on whole arrays. Stroke i is points[offsets[i]:offsets[i+1]]. A stroke of one point is a
+dot. Each stroke carries an intensity (0..1, brightness on the Z channel) and a label naming
+where it came from, for error messages.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import VectorgenError
+
+# Coordinates beyond this (in mm, or SVG user units before fitting) are refused as nonsense.
+COORD_LIMIT = 1e9
+
+
+@dataclass
+class Strokes:
+    points: np.ndarray                  # (P, 2) float64, mm, +y up
+    offsets: np.ndarray                 # (S + 1,) int64
+    intensity: np.ndarray               # (S,) float64 in [0, 1]
+    labels: list = field(default_factory=list)
+
+    @property
+    def count(self) -> int:
+        return len(self.offsets) - 1
+
+    def stroke(self, i: int) -> np.ndarray:
+        return self.points[self.offsets[i]:self.offsets[i + 1]]
+
+    def __iter__(self):
+        for i in range(self.count):
+            yield self.stroke(i)
+
+    def lengths(self) -> np.ndarray:
+        """Arc length of every stroke, mm."""
+        seg = np.hypot(*np.diff(self.points, axis=0).T) if len(self.points) > 1 else np.zeros(0)
+        csum = np.concatenate([[0.0], np.cumsum(seg)])
+        ends = self.offsets[1:] - 1
+        return csum[ends] - csum[self.offsets[:-1]]
+
+    def total_length(self) -> float:
+        return float(self.lengths().sum()) if self.count else 0.0
+
+    def transformed(self, matrix: np.ndarray, offset=(0.0, 0.0)) -> "Strokes":
+        """Affine map p -> matrix @ p + offset (matrix 2 x 2)."""
+        pts = self.points @ np.asarray(matrix, dtype=float).T + np.asarray(offset, dtype=float)
+        return Strokes(pts, self.offsets.copy(), self.intensity.copy(), list(self.labels))
+
+    def bounds(self) -> tuple[float, float, float, float]:
+        if not len(self.points):
+            return (0.0, 0.0, 0.0, 0.0)
+        lo = self.points.min(axis=0)
+        hi = self.points.max(axis=0)
+        return float(lo[0]), float(lo[1]), float(hi[0]), float(hi[1])
+
+    @staticmethod
+    def empty() -> "Strokes":
+        return Strokes(np.zeros((0, 2)), np.zeros(1, dtype=np.int64), np.zeros(0), [])
+
+
+def strokes_from_polylines(polylines, intensity=1.0, labels=None) -> Strokes:
+    """Pack a list of (n_i, 2) arrays (n_i >= 1). `intensity` is one value or one per stroke."""
+    polys = [np.asarray(p, dtype=float).reshape(-1, 2) for p in polylines]
+    polys = [p for p in polys if len(p)]
+    if not polys:
+        return Strokes.empty()
+    counts = np.array([len(p) for p in polys], dtype=np.int64)
+    offsets = np.concatenate([[0], np.cumsum(counts)])
+    inten = np.broadcast_to(np.asarray(intensity, dtype=float), (len(polys),)).copy()
+    labs = list(labels) if labels is not None else [f"stroke {i + 1}" for i in range(len(polys))]
+    return clean(Strokes(np.concatenate(polys), offsets, inten, labs))
+
+
+def concat(parts) -> Strokes:
+    """Join several Strokes into one drawing."""
+    parts = [p for p in parts if p.count]
+    if not parts:
+        return Strokes.empty()
+    pts = np.concatenate([p.points for p in parts])
+    base = np.cumsum([0] + [len(p.points) for p in parts[:-1]])
+    offs = np.concatenate([[0]] + [p.offsets[1:] + b for p, b in zip(parts, base)])
+    return Strokes(pts, offs.astype(np.int64), np.concatenate([p.intensity for p in parts]),
+                   [lab for p in parts for lab in p.labels])
+
+
+def check_finite(strokes: Strokes, what: str = "drawing") -> None:
+    """Refuse NaN, infinite or absurdly large coordinates, naming the stroke."""
+    bad = ~np.isfinite(strokes.points).all(axis=1) | (np.abs(strokes.points) > COORD_LIMIT).any(axis=1)
+    if bad.any():
+        p = int(np.argmax(bad))
+        s = int(np.searchsorted(strokes.offsets, p, side="right") - 1)
+        label = strokes.labels[s] if s < len(strokes.labels) else f"stroke {s + 1}"
+        raise VectorgenError(f"{what}: coordinate {strokes.points[p].tolist()} in {label} is not "
+                             f"a finite number below {COORD_LIMIT:g}")
+    if ((strokes.intensity < 0) | (strokes.intensity > 1) | ~np.isfinite(strokes.intensity)).any():
+        raise VectorgenError(f"{what}: stroke intensity must be between 0 and 1")
+
+
+def clean(strokes: Strokes) -> Strokes:
+    """Drop consecutive duplicate points inside each stroke (a stroke keeps at least one)."""
+    pts, offs = strokes.points, strokes.offsets
+    if len(pts) < 2:
+        return strokes
+    same = np.zeros(len(pts), dtype=bool)
+    same[1:] = np.all(pts[1:] == pts[:-1], axis=1)
+    same[offs[:-1]] = False          # a stroke's first point always stays
+    if not same.any():
+        return strokes
+    keep = ~same
+    new_counts = np.add.reduceat(keep.astype(np.int64), offs[:-1]) if len(offs) > 1 else []
+    new_offs = np.concatenate([[0], np.cumsum(new_counts)]).astype(np.int64)
+    return Strokes(pts[keep], new_offs, strokes.intensity, strokes.labels)

@@ -1,0 +1,212 @@
+"""SVG source: an SVG file to Strokes in screen millimetres.
+
+svgpathtools turns every path, line, polyline, polygon, rect (rounded too), circle and ellipse
+into path segments with all nested group transforms applied; geometry.py flattens them. Each
+continuous sub-path becomes one stroke (an outline, whether the element is filled or not).
+
+Placement (`fit`):
+  "page"     the page (viewBox, else width x height) is fitted into the usable area, aspect kept,
+             centred; with no page size given, the drawing's own bounds are used
+  "content"  the drawing's own bounds are fitted
+  "off"      one SVG user unit is one millimetre; the page centre (or the drawing's centre when
+             there is no page) sits at the screen centre
+SVG has +y down; the screen has +y up, so y is flipped in every mode.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import warnings
+
+import numpy as np
+
+from .errors import VectorgenError
+from .geometry import fit_transform, flatten_path_segments
+from .strokes import Strokes, check_finite, strokes_from_polylines
+
+SVG_NS = "http://www.w3.org/2000/svg"
+MAX_SVG_BYTES = 64 * 1024 * 1024
+FIT_MODES = ("page", "content", "off")
+
+# CSS absolute units in SVG user units (px), per the CSS Values spec: 1in = 96px = 2.54cm.
+UNIT_PX = {"": 1.0, "px": 1.0, "in": 96.0, "cm": 96.0 / 2.54, "mm": 96.0 / 25.4,
+           "q": 96.0 / 101.6, "pt": 96.0 / 72.0, "pc": 16.0}
+_LENGTH = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*([a-zA-Z%]*)\s*$")
+
+
+def parse_length(text: str | None) -> float | None:
+    """An SVG length in user units (px); None when absent or relative (%)."""
+    if text is None:
+        return None
+    m = _LENGTH.match(text)
+    if not m:
+        return None
+    unit = m.group(2).lower()
+    if unit not in UNIT_PX:
+        return None
+    return float(m.group(1)) * UNIT_PX[unit]
+
+
+def read_svg_tree(path: str):
+    """Parse an SVG file safely; returns the root element (tags in the SVG namespace)."""
+    import xml.etree.ElementTree as ET
+
+    try:
+        size = os.path.getsize(path)
+        if size > MAX_SVG_BYTES:
+            raise VectorgenError(f"{path}: SVG larger than {MAX_SVG_BYTES >> 20} MiB")
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except FileNotFoundError:
+        raise VectorgenError(f"file not found: {path}") from None
+    except IsADirectoryError:
+        raise VectorgenError(f"is a folder, not an SVG file: {path}") from None
+    except OSError as exc:
+        raise VectorgenError(f"cannot read {path}: {exc.strerror}") from None
+    if b"<!ENTITY" in data or b"<!entity" in data:
+        raise VectorgenError(f"{path}: refusing an SVG with XML entity declarations")
+    try:
+        root = ET.fromstring(data)
+    except ET.ParseError as exc:
+        raise VectorgenError(f"{path}: not well-formed XML ({exc})") from None
+    if _local(root.tag) != "svg":
+        raise VectorgenError(f"{path}: not an SVG file (root element is <{_local(root.tag)}>)")
+    if not root.tag.startswith("{"):
+        # No xmlns: put every element into the SVG namespace so svgpathtools finds them.
+        for el in root.iter():
+            if isinstance(el.tag, str) and not el.tag.startswith("{"):
+                el.tag = f"{{{SVG_NS}}}{el.tag}"
+    return root
+
+
+def _local(tag) -> str:
+    return tag.rsplit("}", 1)[-1] if isinstance(tag, str) else ""
+
+
+def page_box(root) -> tuple[float, float, float, float] | None:
+    """The page in user units (x0, y0, x1, y1), from viewBox or width/height; None if absent."""
+    vb = root.get("viewBox")
+    if vb:
+        try:
+            x, y, w, h = (float(v) for v in vb.replace(",", " ").split())
+        except ValueError:
+            raise VectorgenError(f"SVG viewBox is not four numbers: {vb!r}") from None
+        if not all(np.isfinite([x, y, w, h])) or w <= 0 or h <= 0:
+            raise VectorgenError(f"SVG viewBox must have a positive width and height: {vb!r}")
+        return x, y, x + w, y + h
+    w, h = parse_length(root.get("width")), parse_length(root.get("height"))
+    if w and h and w > 0 and h > 0 and np.isfinite(w) and np.isfinite(h):
+        return 0.0, 0.0, w, h
+    return None
+
+
+def _element_intensity(el) -> float:
+    value = 1.0
+    style = {}
+    for part in (el.get("style") or "").split(";"):
+        if ":" in part:
+            k, v = part.split(":", 1)
+            style[k.strip()] = v.strip()
+    for key in ("opacity", "stroke-opacity"):
+        raw = style.get(key, el.get(key))
+        if raw is not None:
+            try:
+                value *= min(max(float(raw), 0.0), 1.0)
+            except ValueError:
+                pass
+    return value
+
+
+def _element_label(el, index: int) -> str:
+    ident = el.get("id")
+    tag = _local(el.tag)
+    return f"<{tag} id={ident!r}>" if ident else f"<{tag}> #{index + 1}"
+
+
+def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0.02,
+                   notes: list | None = None) -> Strokes:
+    """Read an SVG and return its strokes in screen mm. `notes` collects warnings for the user
+    (e.g. skipped <text> elements)."""
+    from svgpathtools.document import flattened_paths
+
+    if fit not in FIT_MODES:
+        raise VectorgenError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
+    root = read_svg_tree(path)
+    texts = sum(1 for el in root.iter() if _local(el.tag) == "text")
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            paths = flattened_paths(root)
+    except (ValueError, TypeError, IndexError, KeyError, ZeroDivisionError, OverflowError) as exc:
+        raise VectorgenError(f"{path}: cannot read the SVG's shapes ({exc})") from None
+
+    page = page_box(root)
+    raw_paths = []
+    for index, p in enumerate(paths):
+        el = getattr(p, "element", None)
+        if el is not None and _hidden(el):
+            continue
+        try:
+            subs = p.continuous_subpaths()
+        except (ValueError, IndexError, AssertionError):
+            subs = [p]
+        raw_paths.append((subs, _element_intensity(el) if el is not None else 1.0,
+                          _element_label(el, index) if el is not None else f"path {index + 1}"))
+
+    # Bounds from segment end and control points (a Bezier lies inside its control hull; an
+    # arc's own bbox) give a first scale; the flattened drawing gives the exact bounds.
+    ctrl = [c for subs, _i, _l in raw_paths for sp in subs for seg in sp for c in _seg_pts(seg)]
+    if not ctrl:
+        hint = (f" ({texts} <text> element(s) found: convert text to paths, or use --text)"
+                if texts else "")
+        raise VectorgenError(f"{path}: nothing drawable in this SVG{hint}")
+    ctrl = np.array(ctrl, dtype=complex)
+    if not np.all(np.isfinite(ctrl)) or np.abs(ctrl).max() > 1e12:
+        raise VectorgenError(f"{path}: coordinates are not finite or are enormous")
+    hull = (ctrl.real.min(), ctrl.imag.min(), ctrl.real.max(), ctrl.imag.max())
+
+    def placement(content_box):
+        box = page if (fit == "page" and page is not None) else content_box
+        if fit == "off":
+            cx, cy = (box[0] + box[2]) / 2.0, (box[1] + box[3]) / 2.0
+            m = np.array([[1.0, 0.0], [0.0, -1.0]])
+            return m, -m @ np.array([cx, cy])
+        return fit_transform(box, screen, flip_y=True)
+
+    def flatten(scale):
+        polylines, inten, labels = [], [], []
+        for subs, intensity, label in raw_paths:
+            for sp in subs:
+                if len(sp):
+                    polylines.append(flatten_path_segments(list(sp), tolerance_mm / scale))
+                    inten.append(intensity)
+                    labels.append(label)
+        out = strokes_from_polylines(polylines, np.array(inten), labels)
+        check_finite(out, path)
+        return out
+
+    matrix, offset = placement(hull)
+    scale = abs(matrix[0, 0]) or 1.0
+    strokes = flatten(scale)
+    matrix, offset = placement(strokes.bounds())
+    if abs(matrix[0, 0]) > scale * (1 + 1e-9):      # tighter bounds, larger scale: re-flatten
+        strokes = flatten(abs(matrix[0, 0]))
+    strokes = strokes.transformed(matrix, offset)
+    if texts and notes is not None:
+        notes.append(f"{texts} <text> element(s) in {os.path.basename(path)} were skipped: "
+                     "convert text to paths, or use --text")
+    return strokes
+
+
+def _seg_pts(seg):
+    if hasattr(seg, "bpoints"):
+        return list(seg.bpoints())
+    x0, x1, y0, y1 = seg.bbox()          # svgpathtools Arc.bbox: (xmin, xmax, ymin, ymax)
+    return [complex(x0, y0), complex(x1, y1)]
+
+
+def _hidden(el) -> bool:
+    style = (el.get("style") or "").replace(" ", "")
+    return el.get("display") == "none" or "display:none" in style \
+        or el.get("visibility") == "hidden" or "visibility:hidden" in style
