@@ -17,6 +17,7 @@ from .errors import VectorgenError
 
 COMMAND_MODULES = (
     "vectorgen.cmd_render",
+    "vectorgen.cmd_demo",
 )
 
 PROG = "vectorgen"
