@@ -111,6 +111,12 @@ def order_strokes(strokes: Strokes) -> Strokes:
                    [strokes.labels[i] for i in order])
 
 
+def _turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:
+    """Turning angle in degrees between incoming and outgoing direction vectors (m, 2)."""
+    cosang = np.einsum("ij,ij->i", d_in, d_out) / (np.hypot(*d_in.T) * np.hypot(*d_out.T))
+    return np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0)))
+
+
 def _apportion(budget: int, lengths: np.ndarray) -> np.ndarray:
     """Integers >= 1 summing to `budget`, proportional to `lengths` (largest remainder)."""
     P = len(lengths)
@@ -151,11 +157,8 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     interior[last] = False
     iv = np.flatnonzero(interior)
     if iv.size:
-        d1 = pts[iv] - pts[iv - 1]
-        d2 = pts[iv + 1] - pts[iv]
-        cosang = np.einsum("ij,ij->i", d1, d2) / (np.hypot(*d1.T) * np.hypot(*d2.T))
-        turn = np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0)))
-        sharp[iv] = turn > timing.corner_angle_deg
+        sharp[iv] = _turn_deg(pts[iv] - pts[iv - 1], pts[iv + 1] - pts[iv]) \
+            > timing.corner_angle_deg
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke.
     boundary = np.zeros(P, dtype=bool)
@@ -169,10 +172,18 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     piece_stroke = stroke_of_vertex[a]
     piece_len = s[b] - s[a]
     piece_last = b == last[piece_stroke]
-    piece_rep = np.where(piece_last, timing.end_dwell, timing.corner_dwell)
-
+    # A closed stroke (ends on its start) has no free ends: its start point is lit once and
+    # dwells again at the end only if the closure is a sharp corner (a rectangle's corner).
     is_dot = lengths == 0
-    start_rep = np.where(is_dot, timing.dot_dwell, timing.end_dwell)
+    closed = ~is_dot & np.all(pts[first] == pts[last], axis=1)
+    closed_sharp = np.zeros(S, dtype=bool)
+    cs = np.flatnonzero(closed & (last - first >= 2))
+    if cs.size:
+        closed_sharp[cs] = _turn_deg(pts[last[cs]] - pts[last[cs] - 1],
+                                     pts[first[cs] + 1] - pts[first[cs]]) > timing.corner_angle_deg
+    end_rep = np.where(closed, np.where(closed_sharp, timing.corner_dwell, 0), timing.end_dwell)
+    piece_rep = np.where(piece_last, end_rep[piece_stroke], timing.corner_dwell)
+    start_rep = np.where(is_dot, timing.dot_dwell, np.where(closed, 1, timing.end_dwell))
 
     # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).
     nxt = np.roll(np.arange(S), -1)
@@ -255,4 +266,4 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
                 moving_samples=int(piece_n.sum()),
                 blanked_moves=int((jumps > 0).sum()),
                 blanked_length_mm=float(jump_len.sum()),
-                corners=int(sharp.sum()))
+                corners=int(sharp.sum() + closed_sharp.sum()))
