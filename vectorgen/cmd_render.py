@@ -9,6 +9,8 @@ import math
 from .errors import VectorgenError
 from .sources import add_source_arguments
 
+MAX_OUTPUT_BYTES = 2**32 - 2**20     # a RIFF/WAV file holds at most 4 GiB; all formats share it
+
 
 def add_output_arguments(parser) -> None:
     """Options shared by every command that produces a signal (render, preview, play, ...)."""
@@ -85,6 +87,10 @@ def cmd_render(args) -> int:
     profile, renderer = load_setup(args)
     notes: list = []
     parts = timeline(args, profile, renderer, notes, args.seconds)
+    total = sum(f.samples * n for f, n in parts) * renderer.channels
+    if total * 4 > MAX_OUTPUT_BYTES:
+        raise VectorgenError(f"the output would be {total * 4 / 2**30:.1f} GiB, over the 4 GiB "
+                             f"a WAV file can hold; shorten --seconds or lower --rate")
     signal = np.concatenate([np.tile(f.signal, (n, 1)) for f, n in parts])
     first = parts[0][0]
     rep = first.report(profile)
