@@ -33,7 +33,7 @@ class Timing:
     """Beam timing in samples, worked out from the profile for one sample rate."""
     rate: int
     spacing_mm: float           # writing speed / rate
-    jump_step_mm: float         # jump speed / rate
+    jump_step_mm: float         # jump speed / rate (inf: every jump is a single sample)
     settle: int
     end_dwell: int
     corner_dwell: int
@@ -45,7 +45,8 @@ class Timing:
         def samples(us):
             return int(round(us * 1e-6 * rate))
         speed = beam.writing_speed_mm_per_s if writing_speed is None else writing_speed
-        return cls(rate, speed / rate, beam.jump_speed_mm_per_s / rate,
+        jump = beam.jump_speed_mm_per_s
+        return cls(rate, speed / rate, jump / rate if jump > 0 else np.inf,
                    samples(beam.settle_us), max(1, samples(beam.end_dwell_us)),
                    samples(beam.corner_dwell_us), max(1, samples(beam.dot_dwell_us)),
                    beam.corner_angle_deg)

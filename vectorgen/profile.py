@@ -93,7 +93,7 @@ class Deflection:
 @dataclass
 class Beam:
     writing_speed_mm_per_s: float = 20000.0
-    jump_speed_mm_per_s: float = 1_000_000.0
+    jump_speed_mm_per_s: float = 0.0        # 0 = no limit: a blanked jump is one sample
     settle_us: float = 60.0
     end_dwell_us: float = 40.0
     corner_dwell_us: float = 40.0
@@ -214,7 +214,7 @@ SCHEMA = {
     }),
     "beam": (Beam, {
         "writing_speed_mm_per_s": (float, _positive),
-        "jump_speed_mm_per_s": (float, _positive),
+        "jump_speed_mm_per_s": (float, _non_negative),
         "settle_us": (float, _non_negative),
         "end_dwell_us": (float, _non_negative),
         "corner_dwell_us": (float, _non_negative),
