@@ -28,6 +28,7 @@ from .strokes import Strokes, check_finite, strokes_from_polylines
 SVG_NS = "http://www.w3.org/2000/svg"
 MAX_SVG_BYTES = 64 * 1024 * 1024
 FIT_MODES = ("page", "content", "off")
+UNDRAWN = ("use", "image")   # elements svgpathtools does not turn into paths (besides <text>)
 
 # CSS absolute units in SVG user units (px), per the CSS Values spec: 1in = 96px = 2.54cm.
 UNIT_PX = {"": 1.0, "px": 1.0, "in": 96.0, "cm": 96.0 / 2.54, "mm": 96.0 / 25.4,
@@ -134,6 +135,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         raise VectorgenError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
     root = read_svg_tree(path)
     texts = sum(1 for el in root.iter() if _local(el.tag) == "text")
+    others = sorted({_local(el.tag) for el in root.iter() if _local(el.tag) in UNDRAWN})
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -193,9 +195,13 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
     if abs(matrix[0, 0]) > scale * (1 + 1e-9):      # tighter bounds, larger scale: re-flatten
         strokes = flatten(abs(matrix[0, 0]))
     strokes = strokes.transformed(matrix, offset)
-    if texts and notes is not None:
-        notes.append(f"{texts} <text> element(s) in {os.path.basename(path)} were skipped: "
-                     "convert text to paths, or use --text")
+    if notes is not None:
+        if texts:
+            notes.append(f"{texts} <text> element(s) in {os.path.basename(path)} were skipped: "
+                         "convert text to paths, or use --text")
+        if others:
+            notes.append(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
+                         + " element(s) are not drawn: convert them to paths")
     return strokes
 
 
