@@ -16,6 +16,8 @@ import numpy as np
 
 from .errors import VectorgenError
 
+INVERSE_TOL_MM = 1e-6      # the inverse must reproduce every point to a nanometre
+
 
 @dataclass(frozen=True)
 class DeflectionModel:
@@ -78,7 +80,8 @@ class DeflectionModel:
             if np.all(np.abs(dx) + np.abs(dy) < tol_mm):
                 break
         out = np.stack([x, y], axis=-1)
-        if not np.all(np.isfinite(out)):
+        if not np.all(np.isfinite(out)) or \
+                np.abs(self.distort(out) - p).max(initial=0.0) > INVERSE_TOL_MM:
             raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
                                  "drawing (check k_radial, k_x, k_y)")
         return out
