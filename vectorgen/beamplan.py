@@ -25,6 +25,7 @@ import numpy as np
 from .errors import VectorgenError
 from .strokes import Strokes
 
+MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
 GAP = 1.0  # arc-length gap between strokes on the global axis (any positive number works)
 
 
@@ -216,6 +217,11 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
                     f"a frame of {target_samples} samples is too short for this drawing: it "
                     f"needs at least {fixed + len(piece_len)} (dwells, jumps and settles take "
                     f"{fixed}); lower the refresh rate or raise the sample count") from None
+
+    n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + jumps.sum() + settles.sum())
+    if n_total > MAX_FRAME_SAMPLES:
+        raise VectorgenError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f} s):"
+                             f" raise the writing speed or draw less")
 
     # Lit blocks in drawing order: a start block per stroke, then its pieces.
     # Block: param = base + step * min(k + 1, n_move) for k in 0 .. n_move + n_rep - 1.
