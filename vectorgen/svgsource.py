@@ -169,7 +169,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
     hull = (ctrl.real.min(), ctrl.imag.min(), ctrl.real.max(), ctrl.imag.max())
 
     def placement(content_box):
-        box = page if (fit == "page" and page is not None) else content_box
+        box = page if (fit in ("page", "off") and page is not None) else content_box
         if fit == "off":
             cx, cy = (box[0] + box[2]) / 2.0, (box[1] + box[3]) / 2.0
             m = np.array([[1.0, 0.0], [0.0, -1.0]])
