@@ -149,6 +149,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         el = getattr(p, "element", None)
         if el is not None and _hidden(el):
             continue
+        p = _exact_arcs(p, el)
         try:
             subs = p.continuous_subpaths()
         except (ValueError, IndexError, AssertionError):
@@ -203,6 +204,48 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
             notes.append(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
                          + " element(s) are not drawn: convert them to paths")
     return strokes
+
+
+def _exact_arcs(p, el):
+    """The path with its elliptical arcs mapped exactly through the element's transform.
+
+    svgpathtools maps an arc's end points exactly but its ellipse only for rotation and uniform
+    scale: under a non-uniform scale or a skew a rotated ellipse comes out with the wrong axes,
+    and a mirroring transform can keep the wrong sweep. The image of the ellipse
+    c + R(phi) diag(rx, ry) (cos t, sin t) under p -> A p + b has as semi-axes the singular
+    values of K = A R(phi) diag(rx, ry) and its major axis along K's first left singular
+    vector; the sweep turns over when det A < 0; the large-arc flag is kept."""
+    from svgpathtools import Arc, Line, parse_path
+    from svgpathtools.document import CONVERSIONS
+    from svgpathtools.path import transform, transform_segments_together
+
+    tf = getattr(p, "transform", None)
+    if tf is None or el is None or not any(isinstance(seg, Arc) for seg in p):
+        return p
+    tf = np.asarray(tf, dtype=float)
+    a = tf[:2, :2]
+    if np.array_equal(a, np.eye(2)):
+        return p            # a pure translation maps arcs exactly
+    convert = CONVERSIONS.get(_local(el.tag))
+    if convert is None:
+        return p
+
+    def mapped(seg):
+        if not isinstance(seg, Arc):
+            return transform(seg, tf)
+        ends = transform(Line(seg.start, seg.end), tf)   # same arithmetic as the other segments
+        phi = np.radians(seg.rotation)
+        rot = np.array([[np.cos(phi), -np.sin(phi)], [np.sin(phi), np.cos(phi)]])
+        u, sv, _vt = np.linalg.svd(a @ rot @ np.diag([seg.radius.real, seg.radius.imag]))
+        if sv[1] <= 1e-12 * max(sv[0], 1e-300):
+            return Line(ends.start, ends.end)             # squashed flat
+        sweep = seg.sweep if np.linalg.det(a) > 0 else not seg.sweep
+        return Arc(ends.start, complex(sv[0], sv[1]), float(np.degrees(np.arctan2(u[1, 0], u[0, 0]))),
+                   seg.large_arc, sweep, ends.end)
+
+    out = transform_segments_together(parse_path(convert(el)), mapped)
+    out.element, out.transform = el, p.transform
+    return out
 
 
 def _seg_pts(seg):
