@@ -72,7 +72,11 @@ def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.nda
     convention as flatten_beziers. The last point of each arc is its exact end angle."""
     r = np.maximum(rx, ry)
     cos_arg = np.clip(1.0 - tol / np.maximum(r, 1e-300), -1.0, 1.0)
-    step = np.minimum(2.0 * np.arccos(cos_arg), np.radians(MAX_TURN_DEG))
+    # The tangent of x = a cos t, y = b sin t (a >= b) turns at up to a / b times the rate of
+    # the parametric angle t (at the ends of the major axis), so a flat ellipse needs steps
+    # shorter by b / a to keep every chord's turn under MAX_TURN_DEG.
+    flat = np.minimum(rx, ry) / np.maximum(r, 1e-300)
+    step = np.minimum(2.0 * np.arccos(cos_arg), np.radians(MAX_TURN_DEG) * flat)
     step = np.where(step > 0, step, np.radians(MAX_TURN_DEG))
     n = np.clip(np.ceil(np.abs(delta) / step).astype(np.int64), 1, MAX_CHORDS)
     seg = np.repeat(np.arange(len(center)), n)
