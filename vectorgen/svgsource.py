@@ -134,6 +134,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
     if fit not in FIT_MODES:
         raise VectorgenError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
     root = read_svg_tree(path)
+    _rect_radii(root)
     texts = sum(1 for el in root.iter() if _local(el.tag) == "text")
     others = sorted({_local(el.tag) for el in root.iter() if _local(el.tag) in UNDRAWN})
     try:
@@ -204,6 +205,30 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
             notes.append(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
                          + " element(s) are not drawn: convert them to paths")
     return strokes
+
+
+def _rect_radii(root) -> None:
+    """Corner radii of <rect> as the SVG spec resolves them (SVG 1.1, 9.2): a missing rx or ry
+    takes the other's value, then rx is clamped to half the width and ry to half the height.
+    svgpathtools uses the raw values, which draws a rounded rect wider radii than its sides."""
+    for el in root.iter():
+        if _local(el.tag) != "rect" or (el.get("rx") is None and el.get("ry") is None):
+            continue
+        try:
+            w, h = float(el.get("width", 0)), float(el.get("height", 0))
+            rx = float(el.get("rx")) if el.get("rx") is not None else None
+            ry = float(el.get("ry")) if el.get("ry") is not None else None
+        except ValueError:
+            continue        # left for svgpathtools to refuse
+        rx = ry if rx is None else rx
+        ry = rx if ry is None else ry
+        rx, ry = min(abs(rx), abs(w) / 2.0), min(abs(ry), abs(h) / 2.0)
+        if rx > 0 and ry > 0:
+            el.set("rx", repr(rx))
+            el.set("ry", repr(ry))
+        else:               # a zero radius on either axis: square corners
+            el.attrib.pop("rx", None)
+            el.attrib.pop("ry", None)
 
 
 def _exact_arcs(p, el):
