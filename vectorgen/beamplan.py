@@ -120,17 +120,36 @@ def _turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:
 
 
 def _apportion(budget: int, lengths: np.ndarray) -> np.ndarray:
-    """Integers >= 1 summing to `budget`, proportional to `lengths` (largest remainder)."""
+    """Integers >= 1 summing to `budget`: the step counts of pieces of these lengths drawn at one
+    common spacing d, n = max(1, round(L / d)), as the free-running speed mode does; d is found by
+    bisection and the few samples left over go to the pieces closest to rounding up. (Shares
+    proportional to length plus one sample each would slow every short piece down.)"""
     P = len(lengths)
     if budget < P:
         raise ValueError
-    total = lengths.sum()
-    ideal = (budget - P) * lengths / total if total > 0 else np.full(P, (budget - P) / P)
-    n = np.floor(ideal).astype(np.int64)
-    rest = budget - P - int(n.sum())
+    total = float(lengths.sum())
+    if total <= 0:
+        n = np.full(P, budget // P, dtype=np.int64)
+        n[:budget - int(n.sum())] += 1
+        return n
+
+    def counts(d):
+        return np.maximum(1, np.floor(lengths / d + 0.5)).astype(np.int64)
+
+    lo, hi = total / (budget + P), 2.0 * float(lengths.max())   # counts(lo) >= budget >= counts(hi)
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        if not lo < mid < hi:
+            break
+        if counts(mid).sum() > budget:
+            lo = mid
+        else:
+            hi = mid
+    n = counts(hi)
+    rest = budget - int(n.sum())
     if rest > 0:
-        n[np.argsort(-(ideal - n), kind="stable")[:rest]] += 1
-    return n + 1
+        n[np.argsort(-(lengths / hi - n), kind="stable")[:rest]] += 1
+    return n
 
 
 def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = None,
