@@ -1,0 +1,200 @@
+"""Commands `devices` and `play`: live output through an audio interface."""
+
+from __future__ import annotations
+
+import math
+import os
+import signal as _signal
+import sys
+import time
+
+from .errors import VectorgenError
+from .sources import add_source_arguments
+
+CAUTIONS = (
+    "caution: high voltage: the tube's anode and deflection circuits can kill; keep the covers on.",
+    "caution: a bright stationary spot burns the phosphor: keep brightness low until the "
+    "picture is confirmed.",
+)
+
+
+def cmd_devices(args) -> int:
+    from .live import output_devices
+
+    devices = output_devices()
+    if not devices:
+        print("no output devices: PortAudio sees none (is the interface plugged in, or, for "
+              "JACK, is the server running?)")
+        return 0
+    w = max(4, max(len(d.name) for d in devices))
+    wa = max(8, max(len(d.hostapi) for d in devices))
+    print(f"    {'#':>3}  {'name':<{w}}  {'host API':<{wa}}  {'out':>3}  default rate")
+    for d in devices:
+        mark = "*" if d.default else " "
+        print(f"  {mark} {d.index:>3}  {d.name:<{w}}  {d.hostapi:<{wa}}  {d.channels:>3}  "
+              f"{d.rate:g} Hz")
+    print("* = the default output device; choose another with --device NUMBER or part of "
+          "its name")
+    return 0
+
+
+def _check_seconds(seconds):
+    if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= 366 * 24 * 3600):
+        raise VectorgenError(f"--seconds must be > 0 and at most a year (got {seconds})")
+
+
+class _Stopper:
+    """Turns Ctrl-C and SIGTERM into a clean stop request while the stream runs."""
+
+    def __init__(self):
+        self.reason = None
+        self._old = {}
+
+    def __enter__(self):
+        for sig in (_signal.SIGINT, _signal.SIGTERM):
+            try:
+                self._old[sig] = _signal.signal(sig, self._handle)
+            except (ValueError, OSError):       # not the main thread
+                pass
+        return self
+
+    def _handle(self, signum, frame):
+        self.reason = "Ctrl-C" if signum == _signal.SIGINT else "SIGTERM"
+
+    def __exit__(self, *exc):
+        for sig, old in self._old.items():
+            _signal.signal(sig, old)
+        return False
+
+
+def cmd_play(args) -> int:
+    from . import live
+    from .cmd_render import load_setup
+    from .sources import source_kind, static_strokes
+
+    _check_seconds(args.seconds)
+    kind = source_kind(args)
+    live.sounddevice()                      # PortAudio present?
+    profile, renderer = load_setup(args)
+    device = live.find_device(args.device)
+    rate, channels = renderer.rate, renderer.channels
+    live.check_device(device, channels, rate)
+
+    notes: list = []
+    scene = None
+    if kind == "scene":
+        from .scene import load_scene, schedule_for
+
+        scene = load_scene(args.source)
+        animated = scene.update_hz > 0
+    else:
+        frame = renderer.frame(static_strokes(args, profile, notes))
+        notes.extend(frame.notes)
+        animated = False
+
+    park, zmask = live.park_levels(profile.output, channels)
+    stop_after = None if args.seconds is None else max(1, int(round(args.seconds * rate)))
+    ramp_s = live.RAMP_MS * 1e-3
+    if scene is not None:
+        # The wall-clock time the first frame sample will be heard: after the start ramp (the
+        # producer re-estimates it with the output latency once the stream runs).
+        origin = time.time() + ramp_s
+        schedule = schedule_for(scene, rate, live_origin=origin) if animated else None
+        t0 = schedule.time(0) if schedule is not None else scene.start_time
+        if scene.live_clock and not animated:
+            from .scene import time_of_day
+
+            t0 = time_of_day(origin)
+        frame = scene.frame(renderer, t0)
+        notes.extend(frame.notes)
+
+    from .cli import warn
+
+    for n in dict.fromkeys(notes):
+        warn(n)
+    player = live.Player(frame.signal, rate, park, zmask, stop_after=stop_after)
+    producer = None
+    if animated:
+        producer = live.Producer(player, lambda k: scene.frame(renderer, schedule.time(k)).signal,
+                                 schedule)
+    for line in CAUTIONS:
+        print(f"vectorgen: {line}", file=sys.stderr)
+
+    old_interval = sys.getswitchinterval()
+    sys.setswitchinterval(0.0005)        # the audio callback needs the GIL promptly
+    tty = sys.stdout.isatty() and not args.quiet
+    started = time.monotonic()
+    stop_asked = None
+    try:
+        with _Stopper() as stopper:
+            player.start(device.index)
+            if producer is not None:
+                producer.start()
+            step = live.wait_interval(args.seconds)
+            while not player.wait(step):
+                if stopper.reason and stop_asked is None:
+                    player.request_stop(stopper.reason)
+                    stop_asked = time.monotonic()
+                if stop_asked is not None and time.monotonic() - stop_asked > 5.0:
+                    break                    # the stream no longer runs its callback
+                if tty:
+                    sys.stdout.write("\r" + live.status_line(player, device,
+                                                              time.monotonic() - started))
+                    sys.stdout.flush()
+            if stopper.reason:
+                player.request_stop(stopper.reason)
+    finally:
+        if producer is not None:
+            producer.halt()
+            producer.join(timeout=5.0)
+        player.close()
+        sys.setswitchinterval(old_interval)
+    s = player.stats()
+    if tty:
+        sys.stdout.write("\r\033[K")
+    why = {"Ctrl-C": "stopped by Ctrl-C", "SIGTERM": "stopped by SIGTERM",
+           "error": "stopped by an error", "end": "end of --seconds"}.get(
+        player.stop_reason or "end", "stopped")
+    print(f"played {live.fmt_duration(s['seconds'])} on '{device.name}' ({device.hostapi}) at "
+          f"{rate} Hz, {channels} channels: frames {s['frames']}, updates {s['updates']}, "
+          f"late frames {s['late']}, underruns {s['underruns']}; {why}, parked")
+    sys.stdout.flush()
+    if os.environ.get("VECTORGEN_DEBUG") and player.underrun_at:
+        print(f"underruns after samples {player.underrun_at}", file=sys.stderr)
+    if producer is not None and producer.error is not None:
+        exc = producer.error
+        if isinstance(exc, VectorgenError):
+            raise exc
+        raise VectorgenError(f"while preparing frames: {type(exc).__name__}: {exc}")
+    if player.callback_error is not None:
+        exc = player.callback_error
+        raise VectorgenError(f"audio callback failed: {type(exc).__name__}: {exc}")
+    return 0
+
+
+def register(sub) -> None:
+    p = sub.add_parser("devices", help="list the audio output devices",
+                       description="List the output devices PortAudio sees: number, name, host "
+                       "API, output channels and default sample rate; * marks the default.")
+    p.set_defaults(func=cmd_devices)
+
+    from .cmd_render import add_output_arguments
+
+    p = sub.add_parser("play", help="play a source live through an audio interface",
+                       description="Play a drawing or a scene script (.py) live through an audio "
+                       "interface, looping each frame seamlessly, until Ctrl-C or --seconds. "
+                       "A scene is re-drawn at its UPDATE_HZ; new frames start only at frame "
+                       "boundaries. On stop the beam ramps to the centre, blanked where there "
+                       "is a Z channel.")
+    add_source_arguments(p)
+    add_output_arguments(p)
+    p.add_argument("--device", metavar="NUMBER|NAME",
+                   help="output device: its number or a case-insensitive part of its name "
+                        "(see 'vectorgen devices'; default: the system's default output)")
+    p.add_argument("--seconds", type=float, default=None,
+                   help="stop after this long (default: until Ctrl-C)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no live status line")
+    p.set_defaults(func=cmd_play)
+
+
+__all__ = ["register", "cmd_play", "cmd_devices"]

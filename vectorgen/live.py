@@ -1,0 +1,485 @@
+"""Live output: frames played through an audio interface with sounddevice's callback API.
+
+Threads and hand-over
+    The audio callback (`Player._fill`) only copies samples: it keeps a read position inside
+    the current frame and, each time the frame ends, looks at the queue of prepared frames.
+    Frames are rendered ahead on a producer thread (`Producer`) and handed over in a deque
+    (append / popleft are atomic), each tagged with its *due* sample: the position, counted
+    in frame samples from the start of the first frame, from which it should be on screen.
+
+Frame boundaries
+    The callback switches frames only where the current frame ends, never inside it: at each
+    boundary P it takes the latest queued frame whose due sample is <= P (older ones it passes
+    over are counted as superseded). If the frame the producer is working on is already due
+    and not ready, the current frame simply repeats (the picture holds) and the update is
+    counted once as late. This is the same rule `scene.scene_timeline` follows for files, so
+    a scene played live without late frames gives exactly the samples a file render gives.
+
+Start and stop
+    The stream starts with a short raised-cosine ramp from the park position to the first
+    sample of the first frame (blanked where there is a Z channel) and ends, on Ctrl-C, at the
+    end of --seconds or on an error, with a ramp from wherever the beam is to the park position
+    (Z blanked at once), a short hold there, then the stream stops. The park position is drive
+    (0, 0), the tube's centre: when the stream closes, a DC-coupled interface outputs 0, which
+    is also (0, 0), so parking anywhere else would only add a second jump. With two channels
+    (no blanking) the spot then rests at the centre: turn the brightness down before stopping.
+    With a Z channel, 0 must mean "beam off" at the amplifier (z_blank_level = 0) for the spot
+    to stay dark after the stream closes.
+
+Counting
+    Underruns are the callbacks that PortAudio flags with output_underflow; late frames are
+    scene updates that missed the frame boundary they were due at.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import deque
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import VectorgenError
+
+PORTAUDIO_MISSING = ("PortAudio library not found: install the system package libportaudio2 "
+                     "(Debian/Ubuntu: apt-get install libportaudio2)")
+SEE_DEVICES = "run 'vectorgen devices' to list the output devices"
+PARK_DRIVE = (0.0, 0.0)
+RAMP_MS = 5.0           # start and stop ramps
+PARK_HOLD_MS = 20.0     # hold at the park position before the stream stops
+MAX_PENDING = 64        # prepared frames waiting in the queue at most
+LOOKAHEAD_S = 0.5       # render scene updates up to this long before they are due
+
+
+def sounddevice():
+    """The sounddevice module, or a one-line error naming the system package to install."""
+    try:
+        import sounddevice as sd
+    except OSError:
+        raise VectorgenError(PORTAUDIO_MISSING) from None
+    return sd
+
+
+# --- devices ------------------------------------------------------------------------------------
+
+@dataclass
+class Device:
+    index: int
+    name: str
+    hostapi: str
+    channels: int           # output channels
+    rate: float             # default sample rate
+    default: bool
+
+    def describe(self) -> str:
+        return f"device {self.index} '{self.name}' ({self.hostapi})"
+
+
+def output_devices() -> list[Device]:
+    """Every output device PortAudio sees, in PortAudio's order."""
+    sd = sounddevice()
+    apis = sd.query_hostapis()
+    default = sd.default.device[1]
+    if default is None or (isinstance(default, int) and default < 0):
+        default = -1
+    elif not isinstance(default, int):
+        try:
+            default = sd.query_devices(default, "output")["index"]
+        except (ValueError, sd.PortAudioError):
+            default = -1
+    out = []
+    for info in sd.query_devices():
+        if info["max_output_channels"] > 0:
+            out.append(Device(int(info["index"]), info["name"], apis[info["hostapi"]]["name"],
+                              int(info["max_output_channels"]),
+                              float(info["default_samplerate"]), info["index"] == default))
+    return out
+
+
+def find_device(spec: str | int | None) -> Device:
+    """The output device given by --device: None (the default), an index, or a case-insensitive
+    part of the name (several space-separated parts match in order, as sounddevice does)."""
+    sd = sounddevice()
+    devices = output_devices()
+    if not devices:
+        raise VectorgenError(f"no audio output device found (PortAudio sees none): {SEE_DEVICES}")
+    if spec is None:
+        chosen = [d for d in devices if d.default]
+        if not chosen:
+            raise VectorgenError(f"there is no default output device: choose one with --device "
+                                 f"({SEE_DEVICES})")
+        return chosen[0]
+    text = str(spec).strip()
+    if text.lstrip("-").isdigit():
+        index = int(text)
+        for d in devices:
+            if d.index == index:
+                return d
+        raise VectorgenError(f"there is no output device number {index}: {SEE_DEVICES}")
+    try:
+        index = sd.query_devices(text, "output")["index"]
+    except ValueError as exc:
+        if str(exc).startswith("Multiple"):
+            names = [f"{d.index} '{d.name}'" for d in devices if _matches(d, text)]
+            raise VectorgenError(f"several output devices match '{text}' ({', '.join(names)}): "
+                                 f"give more of the name or the number ({SEE_DEVICES})") from None
+        raise VectorgenError(f"no output device matches '{text}': {SEE_DEVICES}") from None
+    except sd.PortAudioError as exc:
+        raise VectorgenError(f"cannot query device '{text}': {exc}: {SEE_DEVICES}") from None
+    return next(d for d in devices if d.index == index)
+
+
+def _matches(d: Device, text: str) -> bool:
+    full, pos = f"{d.name}, {d.hostapi}".lower(), 0
+    for part in text.lower().split():
+        pos = full.find(part, pos)
+        if pos < 0:
+            return False
+        pos += len(part)
+    return True
+
+
+def check_device(device: Device, channels: int, rate: int) -> None:
+    """A one-line error unless the device can play `channels` float32 channels at `rate`."""
+    sd = sounddevice()
+    if channels > device.channels:
+        raise VectorgenError(f"{device.describe()} has {device.channels} output channel(s); "
+                             f"the signal needs {channels} (use --channels 2, or another device)")
+    try:
+        sd.check_output_settings(device=device.index, channels=channels, dtype="float32",
+                                 samplerate=rate)
+    except (sd.PortAudioError, ValueError) as exc:
+        hint = "" if int(device.rate) == rate else (f"; its default rate is {device.rate:g} Hz, "
+                                                    f"try --rate {device.rate:g}")
+        raise VectorgenError(f"{device.describe()} cannot play {channels} channels at {rate} Hz "
+                             f"({_one_line(exc)}){hint}") from None
+
+
+def _one_line(exc) -> str:
+    return " ".join(str(exc).split())
+
+
+# --- park position and ramps ---------------------------------------------------------------------
+
+def park_levels(output, channels: int, drive=PARK_DRIVE) -> tuple[np.ndarray, np.ndarray]:
+    """Channel values of the park position (drive `drive`, beam blanked) and a mask of the
+    Z channels, both (channels,)."""
+    from types import SimpleNamespace
+
+    from .signal import to_channels
+
+    plan = SimpleNamespace(lit=np.zeros(1, dtype=bool), intensity=np.zeros(1))
+    sig, names = to_channels(np.asarray([drive], dtype=float), plan, output, channels)
+    return sig[0].copy(), np.array([n == "z" for n in names])
+
+
+def ramp_weights(n: int) -> np.ndarray:
+    """Raised-cosine weights w_i = (1 - cos(pi i / n)) / 2, i = 1..n: from just after the start
+    value to exactly the end value."""
+    i = np.arange(1, n + 1, dtype=float)
+    return (1.0 - np.cos(np.pi * i / n)) / 2.0
+
+
+def ramp(start: np.ndarray, end: np.ndarray, n: int, zmask: np.ndarray,
+         zvalue: np.ndarray) -> np.ndarray:
+    """(n, ch) float32 samples moving from `start` (excluded) to `end` (included) on a raised
+    cosine, with every Z channel held at `zvalue` (blanked) throughout."""
+    start = np.asarray(start, dtype=float)
+    end = np.asarray(end, dtype=float)
+    out = start + (end - start) * ramp_weights(n)[:, None]
+    out[:, zmask] = np.asarray(zvalue, dtype=float)[zmask]
+    return out.astype(np.float32)
+
+
+# --- the player ----------------------------------------------------------------------------------
+
+@dataclass
+class Pending:
+    due: int                # frame samples from the start of the first frame
+    signal: np.ndarray      # (n, ch) float32
+    index: int              # scene update number
+
+
+_START, _PLAY, _STOP, _HOLD, _DONE = range(5)
+
+
+class Player:
+    """Plays a first frame and whatever frames are submitted after it, switching only at frame
+    boundaries. `stop_after` (frame samples) ends the output after exactly that much."""
+
+    def __init__(self, first: np.ndarray, rate: int, park: np.ndarray, zmask: np.ndarray,
+                 stop_after: int | None = None, ramp_ms: float = RAMP_MS,
+                 hold_ms: float = PARK_HOLD_MS):
+        first = np.ascontiguousarray(first, dtype=np.float32)
+        if first.ndim != 2 or len(first) == 0:
+            raise VectorgenError("nothing to play: the first frame is empty")
+        self.rate = int(rate)
+        self.channels = first.shape[1]
+        self.park = np.asarray(park, dtype=np.float32)
+        self.zmask = np.asarray(zmask, dtype=bool)
+        self.ramp_samples = max(2, int(round(ramp_ms * 1e-3 * self.rate)))
+        self.hold_samples = max(1, int(round(hold_ms * 1e-3 * self.rate)))
+        self.stop_after = stop_after
+        self.pending: deque = deque()
+        self.awaiting: int | None = None    # due sample of the update being prepared
+        # callback state
+        self._cur = first
+        self._pos = 0
+        self._phase = _START
+        self._ramp = ramp(self.park, first[0], self.ramp_samples, self.zmask, self.park)
+        self._rpos = 0
+        self._hold_left = self.hold_samples
+        self._last = self.park.copy()
+        self._stop_flag = False
+        self._late_flag: int | None = None
+        self._shown_due = 0
+        # counters (each written by one thread only)
+        self.position = 0               # frame samples played
+        self.samples_out = 0            # every sample written, ramps included
+        self.loops = 0                  # frames played to their end
+        self.switches = 0               # new frames taken at a boundary
+        self.shown = 0                  # index of the update on screen
+        self.superseded = 0             # frames passed over at a boundary (a newer one was due)
+        self.late_callback = 0          # updates not ready at their boundary
+        self.late_producer = 0          # updates the producer dropped because their time passed
+        self.underruns = 0
+        self.underrun_at: list = []     # samples written before each underrun (first few)
+        self.last_boundary = 0
+        self.stop_reason: str | None = None
+        self.callback_error: BaseException | None = None
+        self.finished = threading.Event()
+        self.stream = None
+
+    # -- producer side -----------------------------------------------------------------------
+    def submit(self, due: int, signal: np.ndarray, index: int) -> None:
+        sig = np.ascontiguousarray(signal, dtype=np.float32)
+        if sig.ndim != 2 or sig.shape[1] != self.channels or len(sig) == 0:
+            raise VectorgenError(f"frame {index} has shape {sig.shape}; expected (n, "
+                                 f"{self.channels})")
+        self.pending.append(Pending(int(due), sig, int(index)))
+
+    def request_stop(self, reason: str) -> None:
+        if self.stop_reason is None:
+            self.stop_reason = reason
+        self._stop_flag = True
+
+    @property
+    def stopping(self) -> bool:
+        return self._stop_flag or self._phase >= _STOP
+
+    @property
+    def late(self) -> int:
+        return self.late_callback + self.late_producer
+
+    # -- callback side -----------------------------------------------------------------------
+    def _boundary(self) -> None:
+        """At the end of a frame: take the latest due frame, or repeat; count lateness."""
+        P = self.position
+        q = self.pending
+        take = None
+        while q and q[0].due <= P:
+            if take is not None:
+                self.superseded += 1
+            take = q.popleft()
+        if take is not None:
+            self._cur = take.signal
+            self.shown = take.index
+            self._shown_due = take.due
+            self.switches += 1
+        aw = self.awaiting
+        if aw is not None and self._shown_due < aw <= P and aw != self._late_flag:
+            self.late_callback += 1
+            self._late_flag = aw
+        self.last_boundary = P
+
+    def _begin_stop(self) -> None:
+        if self.stop_reason is None:
+            self.stop_reason = "end"
+        self._ramp = ramp(self._last, self.park, self.ramp_samples, self.zmask, self.park)
+        self._rpos = 0
+        self._phase = _STOP
+
+    def _fill(self, out: np.ndarray, frames: int) -> bool:
+        """Write `frames` samples into `out` ((frames, ch) float32). True once finished."""
+        o = 0
+        while o < frames:
+            ph = self._phase
+            if ph == _PLAY:
+                if self._stop_flag or (self.stop_after is not None
+                                       and self.position >= self.stop_after):
+                    self._begin_stop()
+                    continue
+                cur, pos = self._cur, self._pos
+                n = min(frames - o, len(cur) - pos)
+                if self.stop_after is not None:
+                    n = min(n, self.stop_after - self.position)
+                out[o:o + n] = cur[pos:pos + n]
+                o += n
+                pos += n
+                self.position += n
+                self._last[:] = cur[pos - 1]
+                if pos == len(cur):
+                    pos = 0
+                    self.loops += 1
+                    self._boundary()
+                self._pos = pos
+            elif ph == _START or ph == _STOP:
+                if ph == _START and self._stop_flag:
+                    self._begin_stop()
+                    continue
+                r = self._ramp
+                n = min(frames - o, len(r) - self._rpos)
+                out[o:o + n] = r[self._rpos:self._rpos + n]
+                o += n
+                self._rpos += n
+                self._last[:] = r[self._rpos - 1]
+                if self._rpos == len(r):
+                    self._phase = _PLAY if ph == _START else _HOLD
+            elif ph == _HOLD:
+                n = min(frames - o, self._hold_left)
+                out[o:o + n] = self.park
+                o += n
+                self._hold_left -= n
+                if self._hold_left == 0:
+                    self._phase = _DONE
+            else:
+                out[o:] = self.park
+                o = frames
+        self.samples_out += frames
+        return self._phase == _DONE
+
+    def _callback(self, outdata, frames, time_info, status) -> None:
+        if status.output_underflow:
+            self.underruns += 1
+            if len(self.underrun_at) < 100:
+                self.underrun_at.append(self.samples_out)
+        try:
+            done = self._fill(outdata, frames)
+        except BaseException as exc:      # never leave the beam on a half-written block
+            outdata[:] = self.park
+            self.callback_error = exc
+            self.request_stop("error")
+            done = True
+        if done:
+            raise self._sd.CallbackStop
+
+    # -- stream --------------------------------------------------------------------------------
+    def start(self, device: int | None) -> None:
+        sd = sounddevice()
+        self._sd = sd
+        try:
+            self.stream = sd.OutputStream(samplerate=self.rate, channels=self.channels,
+                                          dtype="float32", device=device, latency="high",
+                                          callback=self._callback,
+                                          finished_callback=self.finished.set)
+            self.stream.start()
+        except sd.PortAudioError as exc:
+            self.close()
+            raise VectorgenError(f"cannot start the audio stream: {_one_line(exc)}") from None
+
+    @property
+    def latency(self) -> float:
+        return float(self.stream.latency) if self.stream is not None else 0.0
+
+    def wait(self, timeout: float) -> bool:
+        """True once the stream has finished (or is no longer running)."""
+        if self.finished.wait(timeout):
+            return True
+        return self.stream is None or not self.stream.active
+
+    def close(self) -> None:
+        if self.stream is not None:
+            try:
+                self.stream.close()
+            except Exception:
+                pass
+            self.stream = None
+
+    def stats(self) -> dict:
+        return {"frames": self.loops, "updates": self.switches, "late": self.late,
+                "superseded": self.superseded, "underruns": self.underruns,
+                "seconds": self.position / self.rate}
+
+
+# --- the producer --------------------------------------------------------------------------------
+
+class Producer(threading.Thread):
+    """Renders scene updates 1, 2, ... ahead of time and submits them to the player.
+
+    `render(k) -> (n, ch) float32` makes update k; `schedule.due(k)` gives its due sample.
+    An update is rendered once it is due within LOOKAHEAD_S and the queue has room. If the
+    producer falls so far behind that the next update is due too, the hopeless one is dropped
+    (and counted late if a frame boundary passed after its due sample)."""
+
+    def __init__(self, player: Player, render, schedule, lookahead_s: float = LOOKAHEAD_S,
+                 first: int = 1):
+        super().__init__(name="vectorgen-frames", daemon=True)
+        self.player = player
+        self.render = render
+        self.schedule = schedule
+        self.lookahead = int(lookahead_s * player.rate)
+        self.k = first
+        self.error: BaseException | None = None
+        self.rendered = 0
+        self._halt = threading.Event()
+
+    def halt(self) -> None:
+        self._halt.set()
+
+    def _wait_for_room(self, due: int) -> bool:
+        p = self.player
+        while not (self._halt.is_set() or p.stopping):
+            ahead = due - p.position
+            if len(p.pending) < MAX_PENDING and ahead <= self.lookahead:
+                return True
+            self._halt.wait(min(0.05, max(0.001, (ahead - self.lookahead) / p.rate)))
+        return False
+
+    def run(self) -> None:
+        p, sched = self.player, self.schedule
+        try:
+            while True:
+                k = self.k
+                if hasattr(sched, "resync"):
+                    sched.resync(p.position, p.latency)
+                due = sched.due(k)
+                if p.stop_after is not None and due >= p.stop_after:
+                    return
+                p.awaiting = due
+                if not self._wait_for_room(due):
+                    return
+                pos = p.position
+                while sched.due(k + 1) <= pos:          # hopeless: its successor is due too
+                    if p.last_boundary >= due and p._late_flag != due:
+                        p.late_producer += 1
+                    k += 1
+                    due = sched.due(k)
+                    p.awaiting = due
+                signal = self.render(k)
+                p.submit(due, signal, k)
+                self.rendered += 1
+                self.k = k + 1
+        except BaseException as exc:
+            self.error = exc
+            p.request_stop("error")
+
+
+def status_line(player: Player, device: Device, elapsed: float) -> str:
+    s = player.stats()
+    return (f"playing {elapsed:7.1f} s on '{device.name}': frames {s['frames']}, updates "
+            f"{s['updates']}, late frames {s['late']}, underruns {s['underruns']}")
+
+
+def wait_interval(seconds: float | None) -> float:
+    return 0.25 if seconds is None else min(0.25, max(0.02, seconds / 10))
+
+
+def fmt_duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.3f} s"
+    m, s = divmod(seconds, 60)
+    return f"{int(m)} min {s:.1f} s"
+
+
+__all__ = ["Device", "Player", "Producer", "check_device", "find_device", "output_devices",
+           "park_levels", "ramp", "ramp_weights", "sounddevice"]
