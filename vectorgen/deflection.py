@@ -84,6 +84,19 @@ class DeflectionModel:
                 np.abs(self.distort(out) - p).max(initial=0.0) > INVERSE_TOL_MM:
             raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
                                  "drawing (check k_radial, k_x, k_y)")
+        # Only the branch joined to the tube axis is physical: there both scale factors and the
+        # Jacobian stay positive. Beyond a fold (strong barrel) Newton can converge to a far
+        # point that also satisfies D(q) = p; refuse it rather than drive the beam there.
+        x2, y2 = x * x / R2, y * y / R2
+        fx = 1.0 + kr * (x2 + y2) + kx * y2
+        fy = 1.0 + kr * (x2 + y2) + ky * x2
+        det = (fx + 2.0 * kr * x2) * (fy + 2.0 * kr * y2) - 4.0 * (kr + kx) * (kr + ky) * x2 * y2
+        folded = (fx <= 0) | (fy <= 0) | (det <= 0)
+        if np.any(folded):
+            where = p.reshape(-1, 2)[int(np.argmax(folded.ravel()))]
+            raise VectorgenError("the profile's pincushion terms fold the picture: no position "
+                                 f"near the axis lands at ({where[0]:.2f}, {where[1]:.2f}) mm "
+                                 "(check k_radial, k_x, k_y)")
         return out
 
     # -- full model ------------------------------------------------------------------------------

@@ -1,0 +1,202 @@
+"""Calibration test patterns: targets at known drive positions, drawn through the current profile.
+
+Every target is defined by its drive u (full-scale units), the value the beam gets there. The
+strokes are made in drive units and mapped to mm with the *current* profile's forward model
+p = D(A u + c); the renderer applies that profile's exact inverse, so at each target the beam
+sits at exactly the recorded drive, whatever the profile says about the tube. Measuring where
+the spots really land then tells the true forward model.
+
+Patterns
+  grid    rows x cols targets on a regular lattice in drive space, centred on zero drive, as
+          large as fits in `extent` of the usable area (judged with the current profile). For the
+          full fit and for linearity.
+  box     five targets, the centre and the four corners of the same lattice: a quick gain trim.
+  circle  a circle in the drawing (mm) with ticks at eight points every 45 degrees and a cross at
+          the centre: an aspect check. The circle is defined in mm, not drive: a correct profile
+          makes it land as a circle, and its horizontal and vertical diameters are equal. Its
+          targets' drive values are the current profile's inverse at those points.
+
+Targets are marked with a small cross (two short strokes through the target and a dot on it) or
+with a dot alone (`mark="dot"`). A cross is easier to read with a ruler and spreads the beam's
+dwell; its intensity centroid is the target, so a photo finds it as well as a dot.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from vectorgen.deflection import DeflectionModel
+from vectorgen.errors import VectorgenError
+from vectorgen.strokes import Strokes, strokes_from_polylines
+
+PATTERNS = ("grid", "box", "circle")
+MARKS = ("cross", "dot")
+MAX_SIDE = 40               # rows or columns of a grid
+ARM_FRACTION = 0.18         # cross half-arm as a fraction of the target spacing
+ARM_MAX_MM = 3.0
+ARM_POINTS = 9              # points along each arm (follows the distortion in mm)
+CIRCLE_NAMES = ("E", "NE", "N", "NW", "W", "SW", "S", "SE")
+
+
+@dataclass
+class Pattern:
+    kind: str
+    names: list                 # target names, one per sheet row
+    drive: np.ndarray           # (n, 2) drive of every target
+    nominal_mm: np.ndarray      # (n, 2) where the current profile says they land
+    strokes: Strokes            # the drawing, mm
+    notes: list = field(default_factory=list)
+
+
+def _inside(points: np.ndarray, screen, extent: float) -> bool:
+    if screen.shape == "round":
+        return bool(np.all(np.hypot(points[:, 0], points[:, 1])
+                           <= extent * screen.diameter_mm / 2.0))
+    w, h = screen.half_extent
+    return bool(np.all((np.abs(points[:, 0]) <= extent * w) & (np.abs(points[:, 1]) <= extent * h)))
+
+
+def lattice(rows: int, cols: int) -> tuple[list, np.ndarray]:
+    """Names (r1c1 = top left, as one reads the screen) and unit lattice positions in [-1, 1]^2."""
+    gx = np.linspace(-1.0, 1.0, cols)
+    gy = np.linspace(1.0, -1.0, rows)
+    xx, yy = np.meshgrid(gx, gy)
+    names = [f"r{r + 1}c{c + 1}" for r in range(rows) for c in range(cols)]
+    return names, np.column_stack([xx.ravel(), yy.ravel()])
+
+
+def _arm_drive(model: DeflectionModel, spacing_drive: np.ndarray) -> np.ndarray:
+    """Half-arm of a cross in drive units per axis: ARM_FRACTION of the spacing, at most
+    ARM_MAX_MM on the face (judged by the gains of the current model)."""
+    gains = np.hypot(model.matrix[0], model.matrix[1])      # |A[:, j]|, mm per full scale
+    arm_mm = np.minimum(ARM_FRACTION * spacing_drive * gains, ARM_MAX_MM)
+    return np.full(2, float(np.min(arm_mm / gains)))        # same length in mm on both axes
+
+
+def _cross_polylines(model: DeflectionModel, u: np.ndarray, arm: np.ndarray) -> list:
+    """Two arms (straight in drive space) and a centre dot, mapped to mm."""
+    s = np.linspace(-1.0, 1.0, ARM_POINTS)[:, None]
+    h = u + s * np.array([arm[0], 0.0])
+    v = u + s * np.array([0.0, arm[1]])
+    return [model.drive_to_mm(h), model.drive_to_mm(v), model.drive_to_mm(u[None, :])]
+
+
+def _largest_scale(fits, hi: float = 1.0) -> float:
+    """The largest t in (0, hi] with fits(t) true (fits is monotone), by bisection."""
+    if fits(hi):
+        return hi
+    lo = 0.0
+    for _ in range(50):
+        mid = 0.5 * (lo + hi)
+        if fits(mid):
+            lo = mid
+        else:
+            hi = mid
+    if lo <= 1e-6:
+        raise VectorgenError("the pattern cannot be placed inside the usable area with this "
+                             "profile (check its [deflection] matrix_mm and offset_mm)")
+    return lo
+
+
+def _lattice_pattern(kind: str, profile, rows: int, cols: int, extent: float,
+                     mark: str) -> Pattern:
+    model = DeflectionModel.from_profile(profile)
+    names, unit = lattice(rows, cols)
+    if kind == "box":
+        corner = np.array([[-1.0, 1.0], [1.0, 1.0], [-1.0, -1.0], [1.0, -1.0]])
+        unit = np.vstack([[0.0, 0.0], corner])
+        names = ["centre", "top-left", "top-right", "bottom-left", "bottom-right"]
+    # Spacing of the unit lattice per axis; a box spaces its targets by the half-width.
+    unit_spacing = np.array([2.0 / max(cols - 1, 1), 2.0 / max(rows - 1, 1)])
+    if kind == "box":
+        unit_spacing = np.array([1.0, 1.0])
+
+    def layout(t):
+        u = t * unit
+        arm = _arm_drive(model, t * unit_spacing) if mark == "cross" else np.zeros(2)
+        return u, arm
+
+    def fits(t):
+        u, arm = layout(t)
+        ends = np.concatenate([u, u + [arm[0], 0], u - [arm[0], 0], u + [0, arm[1]],
+                               u - [0, arm[1]]])
+        if np.abs(ends).max() > 1.0:
+            return False
+        try:
+            pts = model.drive_to_mm(ends)
+        except (FloatingPointError, ValueError):
+            return False
+        return np.all(np.isfinite(pts)) and _inside(pts, profile.screen, extent)
+
+    t = _largest_scale(fits, 0.95)
+    u, arm = layout(t)
+    polys, labels = [], []
+    for name, ui in zip(names, u):
+        if mark == "cross":
+            parts = _cross_polylines(model, ui, arm)
+        else:
+            parts = [model.drive_to_mm(ui[None, :])]
+        polys.extend(parts)
+        labels.extend([f"target {name}"] * len(parts))
+    nominal = model.drive_to_mm(u)
+    return Pattern(kind, names, u, nominal, strokes_from_polylines(polys, labels=labels),
+                   [f"targets at drive up to +-{t * np.abs(unit).max():.3f} of full scale"])
+
+
+def _circle_pattern(profile, extent: float, mark: str, tolerance_mm: float) -> Pattern:
+    from shapes.basic import circle_points
+
+    model = DeflectionModel.from_profile(profile)
+    radius = extent * min(profile.screen.half_extent)
+    ang = np.radians(np.arange(8) * 45.0)
+    on_circle = radius * np.column_stack([np.cos(ang), np.sin(ang)])
+    pts_mm = np.vstack([on_circle, [[0.0, 0.0]]])
+    names = list(CIRCLE_NAMES) + ["centre"]
+    tick = min(ARM_MAX_MM, 0.08 * radius)
+    polys = [circle_points(radius, tolerance_mm=tolerance_mm)]
+    labels = [f"circle r={radius:g} mm"]
+    for name, a in zip(CIRCLE_NAMES, ang):
+        d = np.array([np.cos(a), np.sin(a)])
+        polys.append(np.array([(radius - tick) * d, (radius + tick) * d]))
+        labels.append(f"circle tick {name}")
+    polys += [np.array([[-tick, 0.0], [tick, 0.0]]), np.array([[0.0, -tick], [0.0, tick]])]
+    labels += ["circle centre cross", "circle centre cross"]
+    if mark == "dot":
+        polys = polys[:1] + [p[None, :] for p in pts_mm]
+        labels = labels[:1] + [f"target {n}" for n in names]
+    # The outermost ticks must lie inside the usable area, with room to spare.
+    if not _inside((radius + tick) * np.column_stack([np.cos(ang), np.sin(ang)]),
+                   profile.screen, 1.0):
+        raise VectorgenError(f"--extent {extent:g} puts the circle's ticks beyond the usable "
+                             f"area: use a smaller extent")
+    drive = model.mm_to_drive(pts_mm)
+    if np.abs(drive).max() > 1.0:
+        raise VectorgenError(f"a circle of radius {radius:.1f} mm needs drive "
+                             f"{np.abs(drive).max():.3f}, beyond full scale: use a smaller "
+                             f"--extent")
+    diameter = 2 * radius
+    return Pattern("circle", names, drive, pts_mm, strokes_from_polylines(polys, labels=labels),
+                   [f"circle of diameter {diameter:.2f} mm: measure the horizontal (W-E) and "
+                    f"vertical (S-N) diameters; on a correct profile both are {diameter:.2f} mm"])
+
+
+def make_pattern(kind: str, profile, rows: int = 7, cols: int = 9, extent: float = 0.9,
+                 mark: str = "cross") -> Pattern:
+    """The targets and strokes of pattern `kind` for `profile` (the profile in use now)."""
+    if kind not in PATTERNS:
+        raise VectorgenError(f"unknown pattern {kind!r}: choose from " + ", ".join(PATTERNS))
+    if mark not in MARKS:
+        raise VectorgenError(f"unknown mark {mark!r}: choose from " + ", ".join(MARKS))
+    if not (np.isfinite(extent) and 0.1 <= extent <= 1.0):
+        raise VectorgenError(f"--extent must be between 0.1 and 1 (a fraction of the usable "
+                             f"area; got {extent:g})")
+    if kind == "grid":
+        for what, n in (("--rows", rows), ("--cols", cols)):
+            if not (isinstance(n, int) and 2 <= n <= MAX_SIDE):
+                raise VectorgenError(f"{what} must be a whole number from 2 to {MAX_SIDE} "
+                                     f"(got {n})")
+    if kind == "circle":
+        return _circle_pattern(profile, extent, mark, profile.beam.chord_tolerance_mm)
+    return _lattice_pattern(kind, profile, rows, cols, extent, mark)

@@ -1,0 +1,220 @@
+"""Measurement sheets: one CSV row per target of a calibration pattern.
+
+Columns, exactly (in this order when written; any order, any letter case accepted on reading):
+
+    point, drive_x, drive_y, measured_x_mm, measured_y_mm
+
+`point` names the target, `drive_x`/`drive_y` are the drive (full-scale units, +-1) the pattern
+put on the beam there, and the measured columns are where the spot landed on the tube face, in mm
+from the centre of the face (+x right, +y up). The pattern writes them empty; the user fills
+them in with a ruler, or `vectorgen spots` fills them from a photo.
+
+Reading is strict where a guess could corrupt a calibration: a wrong header, text where a number
+belongs, a drive beyond full scale or a duplicated point name is an error naming the line. An
+empty (or half-filled) measurement is not an error: that row is reported and left out, never
+guessed.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+from vectorgen.errors import VectorgenError
+
+COLUMNS = ("point", "drive_x", "drive_y", "measured_x_mm", "measured_y_mm")
+HEADER = ",".join(COLUMNS)
+
+# A plain decimal number: no thousands separators, no underscores, no nan/inf.
+_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+MAX_ROWS = 100_000
+
+
+@dataclass
+class Sheet:
+    path: str
+    names: list                 # point names, one per row
+    drive: np.ndarray           # (n, 2) drive, full-scale units
+    measured: np.ndarray        # (n, 2) mm; NaN where a cell is empty
+    lines: list                 # line number of each row in the file (for messages)
+
+    @property
+    def count(self) -> int:
+        return len(self.names)
+
+    @property
+    def filled(self) -> np.ndarray:
+        """Rows with both measured cells filled."""
+        return np.isfinite(self.measured).all(axis=1)
+
+    @property
+    def partial(self) -> np.ndarray:
+        """Rows with exactly one of the two measured cells filled."""
+        f = np.isfinite(self.measured)
+        return f.any(axis=1) & ~f.all(axis=1)
+
+    def names_where(self, mask) -> list:
+        return [n for n, m in zip(self.names, mask) if m]
+
+
+def parse_number(text: str) -> float | None:
+    """The number in a cell, None for an empty cell; raises ValueError for anything else."""
+    t = text.strip()
+    if not t:
+        return None
+    if not _NUMBER.match(t):
+        raise ValueError(t)
+    return float(t)
+
+
+def _read_text(path: str) -> str:
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(64 * 1024 * 1024 + 1)
+    except FileNotFoundError:
+        raise VectorgenError(f"sheet not found: {path}") from None
+    except IsADirectoryError:
+        raise VectorgenError(f"sheet is a folder, not a file: {path}") from None
+    except OSError as exc:
+        raise VectorgenError(f"cannot read sheet {path}: {exc.strerror}") from None
+    if len(raw) > 64 * 1024 * 1024:
+        raise VectorgenError(f"{path}: too large for a measurement sheet")
+    try:
+        return raw.decode("utf-8-sig")      # spreadsheets often write a byte-order mark
+    except UnicodeDecodeError:
+        raise VectorgenError(f"{path}: not a UTF-8 text file (save the sheet as CSV)") from None
+
+
+def read_sheet(path: str | os.PathLike) -> Sheet:
+    """Read and check a measurement sheet. Errors name the file, the line and the cell."""
+    path = os.fspath(path)
+    text = _read_text(path)
+    rows = [(i + 1, r) for i, r in enumerate(csv.reader(io.StringIO(text)))]
+    rows = [(n, r) for n, r in rows if any(c.strip() for c in r)]     # blank lines, ",,,,"
+    if not rows:
+        raise VectorgenError(f"{path}: the sheet is empty (expected the header {HEADER})")
+    head_line, head = rows[0]
+    cols = [c.strip().lower() for c in head]
+    while cols and not cols[-1]:
+        cols.pop()
+    if len(cols) == 1 and ";" in cols[0]:
+        raise VectorgenError(f"{path}: columns are separated by ';': save the sheet with commas "
+                             f"(expected the header {HEADER})")
+    missing = [c for c in COLUMNS if c not in cols]
+    unknown = [c for c in cols if c not in COLUMNS]
+    dup = sorted({c for c in cols if cols.count(c) > 1})
+    if missing or unknown or dup:
+        what = []
+        if missing:
+            what.append("missing " + ", ".join(missing))
+        if unknown:
+            what.append("unknown " + ", ".join(repr(c) for c in unknown))
+        if dup:
+            what.append("repeated " + ", ".join(dup))
+        raise VectorgenError(f"{path}: line {head_line}: wrong columns ({'; '.join(what)}); "
+                             f"expected {HEADER}")
+    where = [cols.index(c) for c in COLUMNS]
+    body = rows[1:]
+    if not body:
+        raise VectorgenError(f"{path}: the sheet has a header but no targets")
+    if len(body) > MAX_ROWS:
+        raise VectorgenError(f"{path}: more than {MAX_ROWS} rows")
+    names, drive, measured, lines = [], [], [], []
+    seen: dict = {}
+    for line, r in body:
+        extra = [c for c in r[len(cols):] if c.strip()]
+        if len(r) < len(cols) or extra:
+            raise VectorgenError(f"{path}: line {line}: expected {len(cols)} cells "
+                                 f"({HEADER}), found {len(r)}")
+        cells = [r[j] for j in where]
+        name = cells[0].strip()
+        if not name:
+            raise VectorgenError(f"{path}: line {line}: the point has no name")
+        if name in seen:
+            raise VectorgenError(f"{path}: line {line}: point '{name}' is listed twice "
+                                 f"(also on line {seen[name]})")
+        seen[name] = line
+        vals = []
+        for col, cell in zip(COLUMNS[1:], cells[1:]):
+            try:
+                vals.append(parse_number(cell))
+            except ValueError:
+                raise VectorgenError(f"{path}: line {line}: point '{name}': {col} must be a "
+                                     f"number in plain decimals (got {cell.strip()!r})") from None
+        dx, dy, mx, my = vals
+        if dx is None or dy is None:
+            raise VectorgenError(f"{path}: line {line}: point '{name}': drive_x and drive_y "
+                                 f"must both be given")
+        if abs(dx) > 1.0 or abs(dy) > 1.0:
+            raise VectorgenError(f"{path}: line {line}: point '{name}': drive ({dx:g}, {dy:g}) "
+                                 f"is beyond full scale (+-1)")
+        if any(v is not None and abs(v) > 1e5 for v in (mx, my)):
+            raise VectorgenError(f"{path}: line {line}: point '{name}': a measurement of more "
+                                 f"than 100 m is not a position on a tube face (give mm)")
+        names.append(name)
+        drive.append((dx, dy))
+        measured.append((np.nan if mx is None else mx, np.nan if my is None else my))
+        lines.append(line)
+    return Sheet(path, names, np.array(drive, dtype=float), np.array(measured, dtype=float),
+                 lines)
+
+
+def _fmt(v: float, decimals: int | None) -> str:
+    """A cell: empty for NaN, fixed decimals, or 10 significant digits (no "-0")."""
+    if not np.isfinite(v):
+        return ""
+    v = float(v) + 0.0
+    if decimals is None:
+        return f"{v:.10g}"
+    s = f"{v:.{decimals}f}"
+    return s[1:] if s.startswith("-") and not s.strip("-0.") else s
+
+
+def sheet_text(names, drive, measured=None) -> str:
+    """The sheet as CSV text: drive with 10 significant digits, measurements to 1 um."""
+    drive = np.asarray(drive, dtype=float).reshape(-1, 2)
+    if measured is None:
+        measured = np.full(drive.shape, np.nan)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(COLUMNS)
+    for name, (dx, dy), (mx, my) in zip(names, drive, np.asarray(measured, dtype=float)):
+        w.writerow([name, _fmt(dx, None), _fmt(dy, None), _fmt(mx, 3), _fmt(my, 3)])
+    return buf.getvalue()
+
+
+def keep_backup(path: str) -> str | None:
+    """Copy an existing file at `path` to the first free PATH.bakN; returns that path."""
+    from vectorgen.sinks import atomic_write_bytes
+
+    if not os.path.exists(path):
+        return None
+    n = 1
+    while os.path.exists(f"{path}.bak{n}"):
+        n += 1
+    backup = f"{path}.bak{n}"
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except OSError as exc:
+        raise VectorgenError(f"cannot read {path} to keep a backup: {exc.strerror}") from None
+    atomic_write_bytes(backup, data)
+    return backup
+
+
+def write_sheet(path: str, names, drive, measured=None) -> str | None:
+    """Write a sheet atomically; an existing file at `path` is kept as PATH.bakN first.
+    Returns the backup's path (None when there was nothing to keep)."""
+    from vectorgen.sinks import atomic_write_bytes, check_output_path
+
+    path = os.fspath(path)
+    check_output_path(path, (".csv",))
+    data = sheet_text(names, drive, measured).encode("utf-8")
+    backup = keep_backup(path)
+    atomic_write_bytes(path, data)
+    return backup
