@@ -10,7 +10,9 @@ from vectorgen.strokes import Strokes, strokes_from_polylines
 def circle_points(radius: float, center=(0.0, 0.0), tolerance_mm: float = 0.02) -> np.ndarray:
     """A closed polyline on a circle whose chords stay within `tolerance_mm` of it."""
     step = 2.0 * np.arccos(max(-1.0, 1.0 - tolerance_mm / radius)) if radius > 0 else np.pi
-    n = int(np.clip(np.ceil(2 * np.pi / min(step, np.radians(10.0))), 8, 100_000))
+    # (a huge radius makes the step underflow to 0: the chord count is capped anyway)
+    n = int(np.clip(np.ceil(2 * np.pi / max(min(step, np.radians(10.0)), 2 * np.pi / 100_000)),
+                    8, 100_000))
     t = np.linspace(0.0, 2.0 * np.pi, n + 1)
     t[-1] = 0.0      # close exactly on the first point
     return np.column_stack([center[0] + radius * np.cos(t), center[1] + radius * np.sin(t)])
