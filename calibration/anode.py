@@ -18,7 +18,9 @@ What changes: the gains, i.e. the matrix A, scale by S(V_new) / S(V_old). The ce
 scales by the same factor: it is made by a field (centring magnets or a DC current in the yoke,
 or a DC offset on the plates) that deflects faster electrons less, just like the signal. (An
 offset from the gun sitting off the tube axis would not scale; the quick box trim,
-`vectorgen fit --gains-only`, re-fits the offset anyway.) The pincushion terms are kept: they are
+`vectorgen fit --gains-only`, re-fits the offset anyway.) So the zero-drive spot moves by the
+factor, and the drive for the same deflection from it scales by exactly 1 / factor; on a
+centred tube (offset 0) that is the drive for the same spot anywhere on the face. The pincushion terms are kept: they are
 dimensionless and belong to the geometry of the yoke field and the face.
 """
 

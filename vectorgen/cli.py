@@ -18,6 +18,7 @@ from .errors import VectorgenError
 COMMAND_MODULES = (
     "vectorgen.cmd_render",
     "vectorgen.cmd_demo",
+    "vectorgen.cmd_calibrate",
     "vectorgen.cmd_live",
 )
 

@@ -1,0 +1,335 @@
+"""Commands `pattern`, `fit`, `anode` and `spots`: measure a tube once, correct every drawing.
+
+    vectorgen pattern grid -o grid.wav --sheet grid.csv [--rows 7 --cols 9] [--profile T.toml]
+    vectorgen fit grid.csv -o tube.toml [--base T.toml] [--kv 8.0] [--deflection magnetic]
+    vectorgen anode tube.toml --kv 9.0
+    vectorgen pattern box -o box.wav --sheet box.csv --profile tube.toml
+    vectorgen fit --gains-only box.csv --base tube.toml -o tube.toml
+    vectorgen spots photo.jpg --sheet grid.csv [--ref PX,PY=X_MM,Y_MM ...]
+
+The work is done in the `calibration` package; this module only parses options, checks output
+paths before any work and prints.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+
+from .errors import VectorgenError
+
+TERMS = ("auto", "gains", "affine", "full")
+SHOW_NAMES = 8
+
+
+def _warn(msg: str) -> None:
+    from .cli import warn
+
+    warn(msg)
+
+
+def _name_list(names: list) -> str:
+    shown = ", ".join(names[:SHOW_NAMES])
+    return shown + (f" and {len(names) - SHOW_NAMES} more" if len(names) > SHOW_NAMES else "")
+
+
+def _check_finite(value, option: str):
+    if value is not None and not math.isfinite(value):
+        raise VectorgenError(f"{option} must be a finite number (got {value})")
+    return value
+
+
+# --- pattern ------------------------------------------------------------------------------------
+
+def cmd_pattern(args) -> int:
+    import numpy as np
+
+    from calibration.patterns import make_pattern
+    from calibration.sheet import write_sheet
+
+    from .cmd_render import _check_seconds, load_setup
+    from .preview import phosphor_image, write_png
+    from .render import report_line
+    from .sinks import SIGNAL_EXTENSIONS, check_output_path, write_signal
+
+    check_output_path(args.output, SIGNAL_EXTENSIONS)
+    check_output_path(args.sheet, (".csv",))
+    if os.path.abspath(args.sheet) == os.path.abspath(args.output):
+        raise VectorgenError("the signal (-o) and the sheet (--sheet) must be different files")
+    if args.preview:
+        check_output_path(args.preview, (".png",))
+    _check_seconds(args.seconds)
+    _check_finite(args.extent, "--extent")
+    profile, renderer = load_setup(args)
+    pat = make_pattern(args.kind, profile, rows=args.rows, cols=args.cols, extent=args.extent,
+                       mark=args.mark)
+    frame = renderer.frame(pat.strokes)
+    notes = list(frame.notes)
+    repeats = 1 if args.seconds is None else max(1, math.ceil(args.seconds * renderer.rate
+                                                              / frame.samples))
+    for n in dict.fromkeys(notes):
+        _warn(n)
+    if args.mark == "dot":
+        _warn("dot marks hold the beam on a few spots: keep the brightness low, a dwelling spot "
+              "burns the phosphor")
+    write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate, frame.names,
+                 pcm16=args.pcm16)
+    backup = write_sheet(args.sheet, pat.names, pat.drive)
+    if args.preview:
+        write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
+                                               frame.plan.lit))
+    if not args.quiet:
+        rep = frame.report(profile)
+        print(report_line(rep) + f"; wrote {repeats} frame(s) to {args.output}")
+        print(f"{args.kind} pattern: {len(pat.names)} targets; "
+              + "; ".join(pat.notes) + f"; sheet {args.sheet}"
+              + (f" (previous sheet kept as {backup})" if backup else ""))
+        print("measure where each target's centre lands, in mm from the centre of the face "
+              "(+x right, +y up), and fill measured_x_mm, measured_y_mm")
+    return 0
+
+
+# --- fit ----------------------------------------------------------------------------------------
+
+def _default_residuals_path(profile_path: str) -> str:
+    stem = profile_path[:-5] if profile_path.lower().endswith(".toml") else profile_path
+    return stem + "-residuals.png"
+
+
+def cmd_fit(args) -> int:
+    from calibration.anode import check_kv
+    from calibration.fit import (fit_sheet, fitted_profile, report_lines, warnings_for,
+                                 write_residual_png)
+    from calibration.sheet import read_sheet
+
+    from .profile import load_profile, save_profile
+    from .sinks import atomic_write_bytes, check_output_path
+
+    check_output_path(args.output, (".toml",))
+    residuals = args.residuals or _default_residuals_path(args.output)
+    check_output_path(residuals, (".png",))
+    if args.report:
+        check_output_path(args.report, (".json",))
+    if args.kv is not None:
+        check_kv(args.kv, "--kv")
+    if args.gains_only and not args.base:
+        raise VectorgenError("--gains-only keeps the rotation, skew and pincushion of a fitted "
+                             "profile: give it with --base PROFILE")
+    base = load_profile(args.base)
+    sheet = read_sheet(args.sheet)
+    result = fit_sheet(sheet, base, terms=args.terms, gains_only=args.gains_only)
+    if result.skipped:
+        _warn(f"{len(result.skipped)} row(s) without both measurements left out: "
+              f"{_name_list(result.skipped)}")
+    for n in result.notes:
+        _warn(n)
+    rep = result.report
+    for w in warnings_for(rep):
+        _warn(w)
+    name = args.name
+    if name is None and args.base is None:
+        name = f"tube calibrated from {sheet.path}"
+    kind = args.deflection
+    prof = fitted_profile(base, result, kind=kind, anode_kv=args.kv, name=name)
+    rep.update(deflection=prof.deflection.kind, anode_kv=prof.deflection.anode_kv or None,
+               profile=args.output, base=args.base or "<built-in>", residual_picture=residuals)
+    if not prof.deflection.anode_kv:
+        _warn("the profile does not record the anode voltage (give --kv KV): `vectorgen anode` "
+              "needs it to rescale the gains later")
+    mag = write_residual_png(residuals, result, prof.screen)
+    rep["residual_magnification"] = mag
+    backup = save_profile(prof, args.output)
+    rep["backup"] = backup
+    if args.report:
+        atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
+    if not args.quiet:
+        for line in report_lines(rep):
+            print(line)
+        print(f"wrote {args.output}" + (f" (previous profile kept as {backup})" if backup else "")
+              + f"; residuals x{mag:g} in {residuals}")
+    return 0
+
+
+# --- anode --------------------------------------------------------------------------------------
+
+def cmd_anode(args) -> int:
+    import numpy as np
+
+    from calibration.anode import rescale_profile
+    from calibration.fit import check_model, geometry
+
+    from .profile import load_profile, save_profile
+    from .sinks import check_output_path
+
+    out = args.output or args.profile
+    check_output_path(out, (".toml",))
+    _check_finite(args.kv, "--kv")
+    _check_finite(args.from_kv, "--from-kv")
+    prof = load_profile(args.profile)
+    new, f, kv_old = rescale_profile(prof, args.kv, args.from_kv)
+    from .deflection import DeflectionModel
+
+    reach = check_model(DeflectionModel.from_profile(new), new.screen)["max_drive_usable_area"]
+    backup = save_profile(new, out)
+    g_old = geometry(np.asarray(prof.deflection.matrix_mm))
+    g_new = geometry(np.asarray(new.deflection.matrix_mm))
+    if reach > 1.0:
+        _warn(f"at {args.kv:g} kV the usable area needs drive up to {reach:.3f}, beyond full "
+              f"scale: drawings near its edge will be refused (raise the amplifier gain or "
+              f"shrink [screen])")
+    if not args.quiet:
+        print(f"{new.deflection.kind} deflection, {kv_old:g} kV -> {args.kv:g} kV: gains x{f:.6f} "
+              f"(the same spot now needs x{1 / f:.6f} the drive); gain x "
+              f"{g_old['gain_x_mm_per_fs']:.3f} -> {g_new['gain_x_mm_per_fs']:.3f} mm/FS, y "
+              f"{g_old['gain_y_mm_per_fs']:.3f} -> {g_new['gain_y_mm_per_fs']:.3f} mm/FS; "
+              f"offset scaled alike, pincushion kept")
+        print(f"wrote {out}" + (f" (previous profile kept as {backup})" if backup else "")
+              + "; trim with the box pattern and `vectorgen fit --gains-only`")
+    return 0
+
+
+# --- spots --------------------------------------------------------------------------------------
+
+def cmd_spots(args) -> int:
+    from calibration.sheet import read_sheet, write_sheet
+    from calibration.spots import parse_refs, spots_to_sheet
+
+    from .sinks import check_output_path
+
+    out = args.output or args.sheet
+    check_output_path(out, (".csv",))
+    if args.overlay:
+        check_output_path(args.overlay, (".png",))
+    _check_finite(args.threshold, "--threshold")
+    refs = parse_refs(args.ref) if args.ref else None
+    if args.overwrite and refs is None:
+        raise VectorgenError("--overwrite replaces measurements with the photo's: it needs the "
+                             "reference marks from --ref (without --ref the sheet's own "
+                             "measurements are the references)")
+    sheet = read_sheet(args.sheet)
+    res = spots_to_sheet(args.photo, sheet, refs=refs, threshold=args.threshold,
+                         min_area=args.min_area, overwrite=args.overwrite)
+    for n in res.notes:
+        _warn(n)
+    if args.overlay:
+        res.write_overlay(args.overlay)
+    if not res.filled:
+        print(f"{res.summary}; nothing new to fill, {out} not written")
+        return 0
+    backup = write_sheet(out, sheet.names, sheet.drive, res.measured)
+    if not args.quiet:
+        print(f"{res.summary}; filled {len(res.filled)} row(s) of {out}"
+              + (f" (previous sheet kept as {backup})" if backup else ""))
+    return 0
+
+
+# --- parsers ------------------------------------------------------------------------------------
+
+def register(sub) -> None:
+    from .cmd_render import add_output_arguments
+
+    p = sub.add_parser(
+        "pattern", help="draw a calibration pattern and write its measurement sheet",
+        description="Draw a test pattern at known drive positions, through the profile in use, "
+        "into a signal file like `render` (play it with `vectorgen play` where available), and "
+        "write the measurement sheet: one CSV row per target, columns point, drive_x, drive_y, "
+        "measured_x_mm, measured_y_mm, the measured columns empty for you to fill in (mm from "
+        "the centre of the face, +x right, +y up). grid: ROWS x COLS targets for the full fit "
+        "and linearity; box: centre and four corners for a quick gain trim; circle: a circle "
+        "in the drawing with ticks every 45 degrees, for an aspect check.")
+    p.add_argument("kind", choices=("grid", "box", "circle"), metavar="grid|box|circle")
+    p.add_argument("-o", "--output", required=True, metavar="OUT",
+                   help="signal file: .wav, .csv, .raw or .bin")
+    p.add_argument("--sheet", required=True, metavar="SHEET.csv",
+                   help="measurement sheet to write (an existing file is kept as SHEET.csv.bakN)")
+    p.add_argument("--rows", type=int, default=7, help="grid rows (default 7)")
+    p.add_argument("--cols", type=int, default=9, help="grid columns (default 9)")
+    p.add_argument("--extent", type=float, default=0.9, metavar="FRACTION",
+                   help="the targets fill this fraction of the usable area, judged with the "
+                        "profile (default 0.9)")
+    p.add_argument("--mark", choices=("cross", "dot"), default="cross",
+                   help="mark each target with a small cross (default) or a dot")
+    p.add_argument("--seconds", type=float, default=None, help="repeat frames to this duration")
+    p.add_argument("--pcm16", action="store_true", help="16-bit integer samples")
+    p.add_argument("--preview", metavar="FILE.png", help="also write a phosphor preview")
+    p.add_argument("-q", "--quiet", action="store_true")
+    add_output_arguments(p)
+    p.set_defaults(func=cmd_pattern)
+
+    p = sub.add_parser(
+        "fit", help="fit the deflection model to a measurement sheet",
+        description="Fit the deflection model p = D(A u + c) to a filled measurement sheet by "
+        "least squares and write a profile: the base profile's screen, channels and timing "
+        "with the fitted deflection. Reports gains, rotation, skew, pincushion, residuals and "
+        "linearity, and draws the residuals (arrows from fitted to measured, magnified). Rows "
+        "without measurements are left out with a warning; with few rows fewer terms are "
+        "fitted. An existing profile at OUT is kept as OUT.bakN.")
+    p.add_argument("sheet", metavar="SHEET.csv")
+    p.add_argument("-o", "--output", required=True, metavar="PROFILE.toml")
+    p.add_argument("--base", metavar="PROFILE", help="keep this profile's screen, output and "
+                   "beam timing (default: the built-in profile)")
+    p.add_argument("--kv", type=float, metavar="KV", help="anode voltage during the "
+                   "measurement, in kV (recorded for `vectorgen anode`)")
+    p.add_argument("--deflection", choices=("magnetic", "electrostatic"), default=None,
+                   help="deflection kind (default: the base profile's; the built-in is magnetic)")
+    p.add_argument("--terms", choices=TERMS, default="auto",
+                   help="gains: offset and per-axis gains; affine: + rotation and skew; full: "
+                        "+ pincushion; auto (default): as many as the rows allow")
+    p.add_argument("--gains-only", action="store_true",
+                   help="trim only the gains and offset of --base (e.g. from the box pattern "
+                        "after an anode change), keeping its rotation, skew and pincushion")
+    p.add_argument("--report", metavar="FILE.json", help="also write the report as JSON")
+    p.add_argument("--residuals", metavar="FILE.png",
+                   help="residual picture (default: PROFILE-residuals.png)")
+    p.add_argument("--name", help="the profile's name (default: the base's)")
+    p.add_argument("-q", "--quiet", action="store_true")
+    p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser(
+        "anode", help="rescale a profile's gains for a new anode voltage",
+        description="Rescale the gains (and the centring offset) of a profile for a new anode "
+        "voltage from the physics of deflection: magnetic 1/sqrt(V (1 + V / 1022 kV)), "
+        "electrostatic 1/V; the pincushion terms are kept. Then trim with the box pattern and "
+        "`vectorgen fit --gains-only`. The anode supply is lethal: change it only with the "
+        "equipment made safe, as its maker says.")
+    p.add_argument("profile", metavar="PROFILE.toml")
+    p.add_argument("--kv", type=float, required=True, metavar="NEW", help="new anode voltage, kV")
+    p.add_argument("--from-kv", type=float, default=None, metavar="OLD",
+                   help="the voltage the profile was measured at, when it does not record it")
+    p.add_argument("-o", "--output", metavar="OUT.toml",
+                   help="write here instead of back to PROFILE (which is then kept as "
+                        "PROFILE.bakN)")
+    p.add_argument("-q", "--quiet", action="store_true")
+    p.set_defaults(func=cmd_anode)
+
+    p = sub.add_parser(
+        "spots", help="fill a measurement sheet from a photo of the screen",
+        description="Find the pattern's targets in a photo of the screen (threshold, label, "
+        "centroid), match them to the sheet's targets, map pixels to mm with a homography from "
+        "four or more reference marks, and fill the sheet's measured columns. The reference "
+        "marks are either given with --ref (pixel position in the photo = mm position on the "
+        "face, e.g. graticule corners or marks stuck on the face; read the pixels in any image "
+        "viewer), or, without --ref, the targets you already measured with a ruler and entered "
+        "in the sheet (at least four, e.g. the four corners). Take the photo square on and "
+        "upright, the room dark. Missing or ambiguous targets are reported and left empty.")
+    p.add_argument("photo", metavar="PHOTO")
+    p.add_argument("--sheet", required=True, metavar="SHEET.csv")
+    p.add_argument("-o", "--output", metavar="OUT.csv",
+                   help="write the filled sheet here (default: back to SHEET, which is then kept "
+                        "as SHEET.csv.bakN)")
+    p.add_argument("--ref", action="append", metavar="PX,PY=X_MM,Y_MM",
+                   help="a reference mark: its pixel position (column, row from the top left) "
+                        "and its mm position on the face; give it four or more times")
+    p.add_argument("--threshold", type=float, default=0.35, metavar="FRACTION",
+                   help="a dot is brighter than this fraction of the way from the background "
+                        "to the brightest dot (default 0.35)")
+    p.add_argument("--min-area", type=int, default=None, metavar="PX",
+                   help="ignore specks smaller than this many pixels (default: a fifth of the "
+                        "typical dot)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="with --ref: replace measurements already in the sheet")
+    p.add_argument("--overlay", metavar="FILE.png",
+                   help="also write the photo marked with the dots found and matched")
+    p.add_argument("-q", "--quiet", action="store_true")
+    p.set_defaults(func=cmd_spots)
