@@ -175,8 +175,12 @@ def inside_mask(points: np.ndarray, screen, eps: float = 1e-9) -> np.ndarray:
 
 def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     """Cut every stroke at the edge of the usable area. Strokes wholly inside pass untouched
-    (checked with numpy); only strokes that cross the edge go through shapely. Returns the
-    clipped drawing and the number of strokes that were cut or dropped."""
+    (checked with numpy); strokes that cross the edge are clipped segment by segment with
+    shapely, all segments in one vectorised call, and the kept parts joined back into runs in
+    drawing order. (Intersecting a whole stroke as one LineString is set arithmetic: it merges
+    a stretch drawn twice into one and nodes the stroke where it crosses itself, and GEOS can
+    return slivers outside the area for spiky strokes.) Returns the clipped drawing and the
+    number of strokes that were cut or dropped."""
     if not strokes.count:
         return strokes, 0
     inside = inside_mask(strokes.points, screen)
@@ -186,26 +190,68 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     import shapely
 
     area = area_polygon(screen)
-    polys, inten, labels = [], [], []
-    for i in range(strokes.count):
+    cut = np.flatnonzero(~all_in)
+    # The crossing strokes' segments, each closed stroke rotated to start at a vertex outside
+    # the area, so that no kept run wraps round its start.
+    seg_a, seg_b, seg_sid = [], [], []
+    for i in cut:
         pts = strokes.stroke(i)
-        if all_in[i]:
-            pieces = [pts]
-        else:
-            geom = shapely.Point(pts[0]) if len(pts) == 1 else shapely.LineString(pts)
-            pieces = _line_parts(shapely.intersection(geom, area))
-            closed = len(pts) > 2 and np.array_equal(pts[0], pts[-1])
-            if closed and len(pieces) > 1 and np.allclose(pieces[0][0], pts[0]) \
-                    and np.allclose(pieces[-1][-1], pts[-1]):
-                # shapely cuts a closed stroke at its start point: join the two ends again
-                pieces = [np.concatenate([pieces[-1], pieces[0][1:]])] + pieces[1:-1]
-        polys.extend(pieces)
-        inten.extend([strokes.intensity[i]] * len(pieces))
-        labels.extend([strokes.labels[i]] * len(pieces))
+        if len(pts) < 2:
+            continue                                    # a dot off the screen
+        if len(pts) > 2 and np.array_equal(pts[0], pts[-1]):
+            k = int(np.argmin(inside[strokes.offsets[i]:strokes.offsets[i + 1] - 1]))
+            ring = pts[:-1]
+            pts = np.concatenate([ring[k:], ring[:k], ring[k:k + 1]])
+        seg_a.append(pts[:-1])
+        seg_b.append(pts[1:])
+        seg_sid.append(np.full(len(pts) - 1, i))
+    pieces: list = [(int(i), strokes.stroke(int(i))) for i in np.flatnonzero(all_in)]
+    if seg_a:
+        p0, p1, sid = np.concatenate(seg_a), np.concatenate(seg_b), np.concatenate(seg_sid)
+        a, b = p0.copy(), p1.copy()
+        keep = inside_mask(p0, screen) & inside_mask(p1, screen)   # convex area: wholly in
+        todo = np.flatnonzero(~keep)
+        if todo.size:
+            parts = shapely.intersection(shapely.linestrings(np.stack([p0[todo], p1[todo]], 1)),
+                                         area)
+            ok = (shapely.get_type_id(parts) == 1) & (shapely.length(parts) > 0)
+            first = shapely.get_coordinates(shapely.get_point(parts[ok], 0))
+            last = shapely.get_coordinates(shapely.get_point(parts[ok], -1))
+            t = todo[ok]
+            backwards = np.einsum("ij,ij->i", last - first, p1[t] - p0[t]) < 0
+            a[t] = np.where(backwards[:, None], last, first)
+            b[t] = np.where(backwards[:, None], first, last)
+            keep[t] = True
+        # A run starts at a kept segment that begins a stroke, follows a dropped segment, or
+        # does not start where the previous kept part ended (it re-enters the area).
+        prev_keep = np.concatenate([[False], keep[:-1]])
+        new_stroke = np.concatenate([[True], sid[1:] != sid[:-1]])
+        joined = np.concatenate([[False], np.all(a[1:] == b[:-1], axis=1)])
+        start = keep & (new_stroke | ~prev_keep | ~joined)
+        kept = np.flatnonzero(keep)
+        for rows in (np.split(kept, np.flatnonzero(start[kept])[1:]) if kept.size else []):
+            pieces.append((int(sid[rows[0]]), np.vstack([a[rows[:1]], b[rows]])))
+    pieces.sort(key=lambda piece: piece[0])            # stable: runs stay in drawing order
     from .strokes import strokes_from_polylines
 
-    out = strokes_from_polylines(polys, np.array(inten), labels)
+    polys = [_onto_area(p, screen) for _i, p in pieces]
+    out = strokes_from_polylines(polys, np.array([strokes.intensity[i] for i, _p in pieces]),
+                                 [strokes.labels[i] for i, _p in pieces])
     return out, int((~all_in).sum())
+
+
+def _onto_area(points: np.ndarray, screen) -> np.ndarray:
+    """Pull clipped points that rounding left a hair outside the area back onto its edge."""
+    if screen.shape == "round":
+        r = screen.diameter_mm / 2.0
+        d = np.hypot(points[:, 0], points[:, 1])
+        over = d > r
+        if over.any():
+            points = points.copy()
+            points[over] *= (r / d[over])[:, None]
+        return points
+    w, h = screen.half_extent
+    return np.column_stack([np.clip(points[:, 0], -w, w), np.clip(points[:, 1], -h, h)])
 
 
 def _line_parts(geom) -> list:
