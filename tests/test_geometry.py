@@ -405,3 +405,38 @@ def test_spot_never_leaves_the_area_and_clipped_length_matches_shapely(lines):
     pts = frame.plan.points
     assert (np.abs(pts[:, 0]) <= 50 + 1e-9).all() and (np.abs(pts[:, 1]) <= 40 + 1e-9).all()
     assert frame.plan.drawn_length_mm == pytest.approx(ref, rel=1e-9, abs=1e-7)
+
+
+def test_a_stroke_drawn_out_and_back_keeps_both_passes():
+    """The beam retraces: cut at the edge, both passes are drawn (80 mm), not merged into one
+    as a set intersection would."""
+    clipped, _ = clip_to_screen(polylines([(0.0, 0.0), (0.0, 41.0), (0.0, 0.0)]),
+                                Profile().screen)
+    assert clipped.total_length() == pytest.approx(80.0, abs=1e-9)
+
+
+def test_a_self_crossing_stroke_is_not_split_where_it_crosses_itself():
+    # A figure-of-eight-like zigzag crossing itself at (0, 0), leaving the screen on the right.
+    zig = [(-30.0, -20.0), (30.0, 20.0), (30.0, -20.0), (-30.0, 20.0), (60.0, 20.0)]
+    clipped, _ = clip_to_screen(polylines(zig), Profile().screen)
+    assert clipped.count == 1                      # one cut (at x = 50), no cut at (0, 0)
+    np.testing.assert_allclose(clipped.stroke(0)[-1], [50.0, 20.0])
+    assert clipped.total_length() == pytest.approx(
+        2 * math.hypot(60, 40) + 40 + 80, abs=1e-9)   # hand arithmetic, cut at x = 50
+
+
+def test_a_spike_past_the_edge_never_leaves_a_sliver_outside():
+    """A thin spike out of the area (GEOS's whole-line overlay once returned the outside piece
+    (0.976, 40) - (1, 41) here): every clipped point is inside."""
+    spike = [(0.0, 5.324535016505568e-181), (1.0, 41.0), (0.0, 0.0)]
+    clipped, _ = clip_to_screen(polylines(spike), Profile().screen)
+    assert np.abs(clipped.points[:, 1]).max() <= 40.0
+    frame = render(polylines(spike))
+    assert np.abs(frame.plan.points[:, 1]).max() <= 40.0
+
+
+def test_a_stroke_touching_the_edge_from_outside_leaves_no_dot():
+    touching = [(-60.0, 50.0), (-50.0, 40.0), (-60.0, 30.0)]     # touches the corner only
+    clipped, n_cut = clip_to_screen(polylines(touching, [(0, 0), (10, 0)]), Profile().screen)
+    assert n_cut == 1 and clipped.count == 1
+    np.testing.assert_allclose(clipped.stroke(0), [(0, 0), (10, 0)])
