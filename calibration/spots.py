@@ -4,11 +4,15 @@
    colour channel, so any phosphor colour counts), smoothed a little (scipy.ndimage.gaussian_filter)
    and thresholded at `threshold` of the way from the background (the median grey) to the
    brightest spot; the bright regions are labelled (scipy.ndimage.label, 8-connected) and each
-   region's intensity-weighted centroid (scipy.ndimage.center_of_mass) is a dot. A second pass
-   smooths at about an eighth of the target spacing (estimated from the first pass and the
-   number of targets), so a cross's bright ends and dim arms become one blob. Specks (area
+   region's intensity-weighted centroid (scipy.ndimage.center_of_mass) is a dot. When that
+   finds many regions much closer together than the targets (a cross shows as bright ends and
+   a bright centre joined by dimmer arms), a second pass smooths at about half the distance
+   between a mark's pieces, at most an eighth of the target spacing, so each cross becomes one
+   symmetric blob centred on its target. Specks (area
    below `min_area`, by default a fifth of the typical dot) are dropped; regions more than four
-   times the typical dot (merged dots, reflections) are set aside, never split by guesswork.
+   times the typical dot (merged dots, reflections) are set aside, never split by guesswork, and
+   so are lopsided ones (the centroid of the whole region and of its bright core disagree: a
+   stray spot merged into a mark), since their centroid would not be the target's.
    Pixel positions are (x = column, y = row from the top), the top-left pixel's centre at (0, 0).
 
 2. Matching dots to targets. Targets are known by their drive only, so matching works in drive
@@ -40,6 +44,11 @@ import numpy as np
 from vectorgen.errors import VectorgenError
 
 MATCH_RADIUS = 0.4          # of the local target spacing
+CORE = 0.75                 # a region's core: above this fraction of its own peak
+LOPSIDED = 0.1              # core and whole centroids further apart than this x the radius
+LOPSIDED_MIN_PX = 0.75      # ... and than this many pixels: the region is not one clean mark
+JOIN_SPACING = 0.12         # smoothing that joins a mark's pieces: at most this x spacing
+JOIN_PIECES = 0.6           # ... and this x the distance between neighbouring pieces
 OVERSIZE = 4.0              # x the typical dot area
 SPECK = 0.2                 # x the typical dot area
 MAX_PIXELS = 100_000_000
@@ -147,12 +156,21 @@ class Dots:
     oversized: np.ndarray       # (j, 2) centroids of regions set aside as too large
     specks: int                 # regions dropped as too small
     threshold: float            # grey level used
+    lopsided: np.ndarray = None  # (i, 2) centroids of regions set aside as not symmetric
+
+    @property
+    def suspect(self) -> np.ndarray:
+        """Regions set aside (too large or lopsided): a target near one is ambiguous."""
+        parts = [a for a in (self.oversized, self.lopsided) if a is not None and len(a)]
+        return np.concatenate(parts) if parts else np.zeros((0, 2))
 
 
 def _regions(gray: np.ndarray, sigma: float, threshold: float):
     """Label the regions brighter than `threshold` of the way from the background to the peak
-    after Gaussian smoothing: (centroids (k, 2) x/y, areas, level) or None if nothing stands
-    out."""
+    after Gaussian smoothing: (centroids (k, 2) x/y, areas, lopsidedness (k,), level) or None if
+    nothing stands out. Lopsidedness is the distance between a region's centroid and the
+    centroid of its bright core (above 75 % of its own peak), over the region's radius: a
+    symmetric mark gives a few hundredths, a mark with a stray spot merged into it far more."""
     from scipy import ndimage
 
     sm = ndimage.gaussian_filter(gray, sigma)
@@ -171,34 +189,52 @@ def _regions(gray: np.ndarray, sigma: float, threshold: float):
     area = ndimage.sum_labels(mask, lab, idx).astype(float)
     weight = np.clip(sm - bg, 0.0, None)
     rc = np.array(ndimage.center_of_mass(weight, lab, idx), dtype=float).reshape(-1, 2)
-    return rc[:, ::-1], area, level
+    top = np.asarray(ndimage.maximum(sm, lab, idx), dtype=float)
+    core_level = np.concatenate([[np.inf], bg + CORE * (top - bg)])
+    core = mask & (sm >= core_level[lab])
+    cc = np.array(ndimage.center_of_mass(weight * core, lab, idx), dtype=float).reshape(-1, 2)
+    shift = np.hypot(*(rc - cc).T)
+    radius = np.sqrt(area / np.pi)
+    lopsided = shift / np.maximum(radius, 1.0)
+    lopsided[shift <= LOPSIDED_MIN_PX] = 0.0
+    return rc[:, ::-1], area, lopsided, level
 
 
 def find_dots(gray: np.ndarray, threshold: float = 0.35, min_area: int | None = None,
               expected: int | None = None) -> Dots:
     """The pattern's marks as dots. A cross is drawn with bright ends and dimmer arms, so a
-    first pass (light smoothing) only finds its pieces; from their spread and the number of
-    targets `expected` it estimates the target spacing, and a second pass smooths at about an
-    eighth of that spacing, which joins each cross into one symmetric blob centred on the target
-    (a dot stays a dot; neighbouring targets stay apart)."""
+    first pass (light smoothing) may find only its pieces; when many pieces lie much closer
+    together than the targets (spacing estimated from the pieces' spread and the number of
+    targets `expected`), a second pass smooths at about half the distance between a mark's
+    pieces, which joins each cross into one symmetric blob centred on its target (dots are left
+    as they are; neighbouring targets stay apart)."""
     if not 0.02 <= threshold <= 0.98:
         raise VectorgenError(f"--threshold must be between 0.02 and 0.98 (got {threshold:g})")
     if min_area is not None and min_area < 1:
         raise VectorgenError(f"--min-area must be at least 1 pixel (got {min_area})")
-    empty = Dots(np.zeros((0, 2)), np.zeros(0), np.zeros((0, 2)), 0, 0.0)
+    empty = Dots(np.zeros((0, 2)), np.zeros(0), np.zeros((0, 2)), 0, 0.0, np.zeros((0, 2)))
     found = _regions(gray, 1.0, threshold)
     if found is None:
         return empty
-    if expected:
-        xy = found[0]
-        lo, hi = np.percentile(xy, 2, axis=0), np.percentile(xy, 98, axis=0)
-        spacing = float(np.sqrt(np.prod(np.maximum(hi - lo, 1.0)) / max(expected, 1)))
-        sigma = max(1.0, 0.12 * spacing)
-        if sigma > 1.0:
-            found = _regions(gray, sigma, threshold)
-            if found is None:
-                return empty
-    xy, area, level = found
+    pieces = found[0][found[1] >= 2.0]
+    if expected and len(pieces) >= 2:
+        from scipy.spatial import cKDTree
+
+        # Marks drawn in parts (a cross shows bright ends and centre joined by dimmer arms)
+        # give pieces much closer to each other than the targets are. Join them by smoothing at
+        # about half the distance between a mark's pieces, at most an eighth of the target
+        # spacing (estimated from the pieces' spread and the number of targets).
+        lo, hi = np.percentile(pieces, 2, axis=0), np.percentile(pieces, 98, axis=0)
+        spacing = float(np.sqrt(np.prod(np.maximum(hi - lo, 1.0)) / expected))
+        near = cKDTree(pieces).query(pieces, k=2)[0][:, 1]
+        within = near[near < 0.5 * spacing]
+        if len(within) >= 0.25 * len(near):
+            sigma = min(JOIN_SPACING * spacing, JOIN_PIECES * float(np.median(within)))
+            if sigma > 1.0:
+                joined = _regions(gray, sigma, threshold)
+                if joined is not None:
+                    found = joined
+    xy, area, lopsided, level = found
     typical = float(np.median(area))
     small = area < (min_area if min_area is not None else max(2.0, SPECK * typical))
     keep = ~small
@@ -206,7 +242,9 @@ def find_dots(gray: np.ndarray, threshold: float = 0.35, min_area: int | None = 
         typical = float(np.median(area[keep]))
     big = keep & (area > OVERSIZE * typical)
     keep &= ~big
-    return Dots(xy[keep], area[keep], xy[big], int(small.sum()), level)
+    odd = keep & (lopsided > LOPSIDED)
+    keep &= ~odd
+    return Dots(xy[keep], area[keep], xy[big], int(small.sum()), level, xy[odd])
 
 
 # --- matching -----------------------------------------------------------------------------------
@@ -258,7 +296,8 @@ def _extremes(pts: np.ndarray) -> np.ndarray:
 
 def match_targets(drive: np.ndarray, frame: np.ndarray):
     """Match targets (drive (n, 2)) to dots (frame (k, 2), +y up). Returns (dot index per
-    target or -1, status per target: "ok" | "missing" | "ambiguous", predicted (n, 2))."""
+    target or -1, status per target: "ok" | "missing" | "ambiguous", predicted (n, 2), match
+    radius per target)."""
     from scipy.spatial import cKDTree
 
     n = len(drive)
@@ -294,7 +333,8 @@ def match_targets(drive: np.ndarray, frame: np.ndarray):
             pred.fit(drive[ok], frame[match[ok]])
         except VectorgenError:
             break
-    return match, status, pred(drive)
+    p = pred(drive)
+    return match, status, p, MATCH_RADIUS * cKDTree(p).query(p, k=2)[0][:, 1]
 
 
 # --- references ---------------------------------------------------------------------------------
@@ -404,6 +444,10 @@ def spots_to_sheet(photo: str, sheet, refs=None, threshold: float = 0.35,
         notes.append(f"{len(dots.oversized)} bright region(s) much larger than a dot set aside "
                      f"(merged dots or reflections) at pixel "
                      + "; ".join(f"{x:.0f},{y:.0f}" for x, y in dots.oversized[:SHOW]))
+    if len(dots.lopsided):
+        notes.append(f"{len(dots.lopsided)} lopsided dot(s) set aside (a stray spot merged into "
+                     f"a mark?) at pixel "
+                     + "; ".join(f"{x:.0f},{y:.0f}" for x, y in dots.lopsided[:SHOW]))
 
     if refs is not None:
         H_ref = homography([r[0] for r in refs], [r[1] for r in refs])
@@ -411,7 +455,14 @@ def spots_to_sheet(photo: str, sheet, refs=None, threshold: float = 0.35,
     else:
         H_ref = None
         frame = dots.xy * np.array([1.0, -1.0])                # upright photo: +y up
-    match, status, pred_frame = match_targets(sheet.drive, frame)
+    match, status, pred_frame, radius = match_targets(sheet.drive, frame)
+    suspect = dots.suspect
+    if len(suspect):
+        from scipy.spatial import cKDTree
+
+        sf = apply_h(H_ref, suspect) if H_ref is not None else suspect * np.array([1.0, -1.0])
+        near = cKDTree(sf).query(pred_frame)[0] <= radius
+        status = ["ambiguous" if s == "missing" and nr else s for s, nr in zip(status, near)]
     ok = np.array([s == "ok" for s in status])
     if ok.sum() < 4:
         raise VectorgenError(f"could match only {int(ok.sum())} of {sheet.count} targets to "
@@ -423,8 +474,8 @@ def spots_to_sheet(photo: str, sheet, refs=None, threshold: float = 0.35,
     if missing:
         notes.append(f"{len(missing)} target(s) without a dot, left empty: {_names(missing)}")
     if ambiguous:
-        notes.append(f"{len(ambiguous)} target(s) with more than one dot nearby, left empty: "
-                     f"{_names(ambiguous)}")
+        notes.append(f"{len(ambiguous)} target(s) with more than one dot nearby (or a dot "
+                     f"set aside), left empty: {_names(ambiguous)}")
     unused = np.setdiff1d(np.arange(len(dots.xy)), match[ok])
     if len(unused):
         notes.append(f"{len(unused)} dot(s) match no target (pixel "
