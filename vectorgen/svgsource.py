@@ -135,6 +135,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         raise VectorgenError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
     root = read_svg_tree(path)
     _rect_radii(root)
+    _check_path_data(root, path)
     texts = sum(1 for el in root.iter() if _local(el.tag) == "text")
     others = sorted({_local(el.tag) for el in root.iter() if _local(el.tag) in UNDRAWN})
     try:
@@ -205,6 +206,22 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
             notes.append(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
                          + " element(s) are not drawn: convert them to paths")
     return strokes
+
+
+# Characters the SVG path grammar allows (SVG 1.1, 8.3.9): command letters, numbers, separators.
+_PATH_BAD_CHAR = re.compile(r"[^MmZzLlHhVvCcSsQqTtAa0-9eE+\-.,\s]")
+
+
+def _check_path_data(root, path: str) -> None:
+    """Refuse path data outside the SVG grammar (e.g. an unknown command letter), naming the
+    element: svgpathtools skips an unknown command and draws on, a silently different drawing."""
+    for index, el in enumerate(el for el in root.iter() if _local(el.tag) == "path"):
+        d = el.get("d") or ""
+        m = _PATH_BAD_CHAR.search(d)
+        if m:
+            raise VectorgenError(f"{path}: {_element_label(el, index)} has {m.group()!r} at "
+                                 f"character {m.start() + 1} of its path data, which SVG path "
+                                 f"syntax does not allow")
 
 
 def _rect_radii(root) -> None:
