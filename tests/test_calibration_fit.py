@@ -231,3 +231,39 @@ def test_fitted_model_is_the_engine_model():
     prof = fitted_profile(bench_profile(), res)
     assert np.array_equal(DeflectionModel.from_profile(prof).drive_to_mm(res.drive),
                           res.predicted)
+
+
+def test_the_bench_example_runs_end_to_end(tmp_path, capsys):
+    # examples/bench7-*.csv were measured (invented data) on a fictional 7-inch magnetic tube:
+    # gains 73.5 and 55.2 mm per full scale at 8 kV; after moving to 9 kV its gains fell by the
+    # magnetic law and its amplifier drifted by +1 % (x) and -0.5 % (y). The momentum ratio is
+    # computed here from E^2 = (pc)^2 + (mc^2)^2 (special relativity, from memory).
+    import math
+
+    from scipy import constants
+
+    from calib_helpers import REPO
+
+    def momentum(kv):
+        mc2 = constants.m_e * constants.c ** 2
+        E = mc2 + constants.e * kv * 1e3
+        return math.sqrt(E * E - mc2 * mc2)
+
+    ex = REPO / "examples"
+    tube = tmp_path / "bench7.toml"
+    assert main(["fit", str(ex / "bench7-grid.csv"), "--base", str(ex / "bench7-start.toml"),
+                 "--kv", "8", "-o", str(tube), "-q"]) == 0
+    assert "r9c11" in capsys.readouterr().err            # the one row left empty
+    assert main(["anode", str(tube), "--kv", "9", "-q"]) == 0
+    assert main(["pattern", "box", "-o", str(tmp_path / "box.wav"), "--sheet",
+                 str(tmp_path / "box.csv"), "--profile", str(tube), "-q"]) == 0
+    # The example's box sheet is this very pattern.
+    assert np.allclose(read_sheet(tmp_path / "box.csv").drive,
+                       read_sheet(ex / "bench7-box-9kv.csv").drive, atol=1e-9)
+    assert main(["fit", "--gains-only", str(ex / "bench7-box-9kv.csv"), "--base", str(tube),
+                 "-o", str(tube), "--report", str(tmp_path / "trim.json"), "-q"]) == 0
+    rep = json.loads((tmp_path / "trim.json").read_text())
+    f = momentum(8.0) / momentum(9.0)
+    assert rep["gain_x_mm_per_fs"] == pytest.approx(73.5 * f * 1.01, rel=0.01)
+    assert rep["gain_y_mm_per_fs"] == pytest.approx(55.2 * f * 0.995, rel=0.01)
+    assert load_profile(tube).deflection.anode_kv == 9.0
