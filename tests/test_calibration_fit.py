@@ -267,3 +267,24 @@ def test_the_bench_example_runs_end_to_end(tmp_path, capsys):
     assert rep["gain_x_mm_per_fs"] == pytest.approx(73.5 * f * 1.01, rel=0.01)
     assert rep["gain_y_mm_per_fs"] == pytest.approx(55.2 * f * 0.995, rel=0.01)
     assert load_profile(tube).deflection.anode_kv == 9.0
+
+
+def test_measurements_that_fold_the_picture_are_refused():
+    # A barrel so strong the fitted model would fold inside the usable area.
+    folding = SyntheticTube(gain_matrix(92.0, 70.0, 0.0, 0.0), np.zeros(2), (-0.45, 0.0, 0.0))
+    with pytest.raises(VectorgenError, match="cannot be inverted over the usable area"):
+        fit_sheet(synthetic_sheet(noise=0.0, tube=folding), bench_profile())
+
+
+def test_a_mirrored_picture_and_centimetres_are_caught():
+    from calibration.fit import warnings_for
+
+    sh = synthetic_sheet(noise=0.0)
+    sh.measured[:, 1] *= -1.0                      # y measured downwards
+    rep = fit_sheet(sh, bench_profile()).report
+    assert rep["mirrored"] is True
+    assert any("mirrored" in w for w in warnings_for(rep))
+    sh = synthetic_sheet(noise=0.0)
+    sh.measured /= 10.0                            # centimetres for millimetres
+    with pytest.raises(VectorgenError, match="not a plausible tube"):
+        fit_sheet(sh, bench_profile())

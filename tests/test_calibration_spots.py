@@ -185,3 +185,20 @@ def test_dot_marks_are_found_as_they_are(tmp_path):
     sh = read_sheet(tmp_path / "dots.csv")
     assert sh.count == 63 and sh.filled.all()
     assert np.hypot(*(sh.measured - tube.land(sh.drive)).T).max() < 0.3
+
+
+def test_overwrite_replaces_measurements_only_when_asked(grid, capsys):
+    sh = read_sheet(grid["sheet"])
+    m = np.full((sh.count, 2), np.nan)
+    m[0] = (1.0, 2.0)                              # a wrong reading in r1c1
+    path = copy_sheet(grid, "over.csv", m)
+    args = ["spots", str(grid["folder"] / "photo.png"), "--sheet", str(path), "-q",
+            *refs_args(grid["to_photo"])]
+    assert main(args) == 0
+    assert "already measured kept" in capsys.readouterr().err
+    assert read_sheet(path).measured[0].tolist() == [1.0, 2.0]
+    assert main(args + ["--overwrite"]) == 0
+    got = read_sheet(path).measured[0]
+    assert np.hypot(*(got - grid["tube"].land(sh.drive[:1])[0])) < 0.3
+    assert main(["spots", str(grid["folder"] / "photo.png"), "--sheet", str(path),
+                 "--overwrite"]) == 2
