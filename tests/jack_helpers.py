@@ -14,6 +14,7 @@ from __future__ import annotations
 import os
 import re
 import shutil
+import signal
 import subprocess
 import sys
 import threading
@@ -175,8 +176,11 @@ class PlayResult:
 
 
 def play_and_record(server: JackServer, args, channels: int, seconds: float,
-                    timeout: float = 120.0, env: dict | None = None) -> PlayResult:
-    """Run `python -m vectorgen play ARGS` against the server and record its output."""
+                    timeout: float = 120.0, env: dict | None = None,
+                    interrupt_after: float | None = None) -> PlayResult:
+    """Run `python -m vectorgen play ARGS` against the server and record its output
+    (for about `seconds`); `interrupt_after` sends SIGINT (Ctrl-C) that long after the
+    player's ports appeared."""
     rec = Recorder(server, channels, seconds + 5.0)
     proc = subprocess.Popen([sys.executable, "-m", "vectorgen", "play", *map(str, args)],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
@@ -187,6 +191,9 @@ def play_and_record(server: JackServer, args, channels: int, seconds: float,
     reader.start()
     try:
         connected = rec.connect_when_ready(timeout=min(30.0, timeout), proc=proc)
+        if interrupt_after is not None and connected:
+            time.sleep(interrupt_after)
+            proc.send_signal(signal.SIGINT)
         reader.join(timeout)
         time.sleep(2 * server.period / server.rate)
     finally:

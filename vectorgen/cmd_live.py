@@ -76,18 +76,18 @@ def cmd_play(args) -> int:
     kind = source_kind(args)
     live.sounddevice()                      # PortAudio present?
     profile, renderer = load_setup(args)
-    device = live.find_device(args.device)
-    rate, channels = renderer.rate, renderer.channels
-    live.check_device(device, channels, rate)
-
-    notes: list = []
     scene = None
     if kind == "scene":
         from .scene import load_scene, schedule_for
 
         scene = load_scene(args.source)
         animated = scene.update_hz > 0
-    else:
+    device = live.find_device(args.device)
+    rate, channels = renderer.rate, renderer.channels
+    live.check_device(device, channels, rate)
+
+    notes: list = []
+    if scene is None:
         frame = renderer.frame(static_strokes(args, profile, notes))
         notes.extend(frame.notes)
         animated = False

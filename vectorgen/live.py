@@ -456,9 +456,13 @@ class Producer(threading.Thread):
                     due = sched.due(k)
                     p.awaiting = due
                 signal = self.render(k)
-                p.submit(due, signal, k)
                 self.rendered += 1
                 self.k = k + 1
+                if sched.due(k + 1) <= p.position:      # went stale while being made
+                    if p.last_boundary >= due and p._late_flag != due:
+                        p.late_producer += 1
+                    continue
+                p.submit(due, signal, k)
         except BaseException as exc:
             self.error = exc
             p.request_stop("error")
