@@ -88,46 +88,67 @@ def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.nda
 
 def flatten_path_segments(segments, tol: float) -> np.ndarray:
     """Flatten a continuous run of svgpathtools segments to an (n, 2) polyline."""
+    pts, offsets = flatten_runs([segments], tol)
+    return pts
+
+
+def flatten_runs(runs, tol: float) -> tuple[np.ndarray, np.ndarray]:
+    """Flatten many continuous runs of svgpathtools segments at once: every segment of one kind
+    in the whole drawing goes through one vectorised call. Returns the points (P, 2) of all runs
+    packed end to end and the run offsets (R + 1,): run r is points[offsets[r]:offsets[r + 1]],
+    its first point the run's start."""
     from svgpathtools import Arc, CubicBezier, Line, QuadraticBezier
 
-    m = len(segments)
+    run_len = np.array([len(r) for r in runs], dtype=np.int64)
+    if (run_len == 0).any():
+        raise ValueError("flatten_runs: empty run")
+    segs = [seg for r in runs for seg in r]
+    m = len(segs)
     kinds = np.empty(m, dtype=np.int8)
-    lines, quads, cubics, arcs = [], [], [], []
-    for j, s in enumerate(segments):
-        if isinstance(s, Line):
+    data = {1: [], 2: [], 3: [], 4: []}
+    for j, seg in enumerate(segs):
+        if isinstance(seg, Line):
             kinds[j] = 1
-            lines.append((s.start, s.end))
-        elif isinstance(s, QuadraticBezier):
+            data[1].append((seg.start, seg.end))
+        elif isinstance(seg, QuadraticBezier):
             kinds[j] = 2
-            quads.append((s.start, s.control, s.end))
-        elif isinstance(s, CubicBezier):
+            data[2].append((seg.start, seg.control, seg.end))
+        elif isinstance(seg, CubicBezier):
             kinds[j] = 3
-            cubics.append((s.start, s.control1, s.control2, s.end))
-        elif isinstance(s, Arc):
+            data[3].append((seg.start, seg.control1, seg.control2, seg.end))
+        elif isinstance(seg, Arc):
             kinds[j] = 4
-            arcs.append((s.center, s.radius.real, s.radius.imag, np.radians(s.rotation),
-                         np.radians(s.theta), np.radians(s.delta), s.end))
+            data[4].append((seg.center, seg.radius.real, seg.radius.imag, np.radians(seg.rotation),
+                            np.radians(seg.theta), np.radians(seg.delta), seg.end))
         else:  # pragma: no cover - svgpathtools has no other kinds
-            raise VectorgenError(f"unsupported path segment {type(s).__name__}")
-    chunks = [None] * m
-    for kind, data in ((1, lines), (2, quads), (3, cubics)):
-        if data:
-            pts, n = flatten_beziers(np.array(data, dtype=complex), tol)
-            _scatter(chunks, np.flatnonzero(kinds == kind), pts, n)
-    if arcs:
-        a = np.array(arcs, dtype=complex)
+            raise VectorgenError(f"unsupported path segment {type(seg).__name__}")
+    flat = {}
+    for kind in (1, 2, 3):
+        if data[kind]:
+            flat[kind] = flatten_beziers(np.array(data[kind], dtype=complex), tol)
+    if data[4]:
+        a = np.array(data[4], dtype=complex)
         pts, n = flatten_arcs(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
                               a[:, 5].real, tol)
         pts[np.cumsum(n) - 1] = a[:, 6]      # land exactly on each arc's end point
-        _scatter(chunks, np.flatnonzero(kinds == 4), pts, n)
-    z = np.concatenate([[segments[0].start]] + chunks)
-    return np.column_stack([z.real, z.imag])
+        flat[4] = (pts, n)
 
-
-def _scatter(chunks, where, pts, n):
-    ends = np.cumsum(n)
-    for j, a, b in zip(where, ends - n, ends):
-        chunks[j] = pts[a:b]
+    # Layout: each run is its start point followed by its segments' points in order.
+    n_seg = np.zeros(m, dtype=np.int64)
+    for kind, (_pts, n) in flat.items():
+        n_seg[kinds == kind] = n
+    seg_run = np.repeat(np.arange(len(runs)), run_len)
+    run_first = np.cumsum(run_len) - run_len
+    offsets = np.concatenate([[0], np.cumsum(1 + np.bincount(seg_run, weights=n_seg,
+                                                             minlength=len(runs)))]).astype(np.int64)
+    before = np.cumsum(n_seg) - n_seg                  # points of earlier segments, all runs
+    seg_dest = offsets[seg_run] + 1 + before - before[run_first][seg_run]
+    z = np.empty(offsets[-1], dtype=complex)
+    z[offsets[:-1]] = [segs[j].start for j in run_first]
+    for kind, (pts, n) in flat.items():
+        dest = np.repeat(seg_dest[kinds == kind], n)
+        z[dest + np.arange(len(pts)) - np.repeat(np.cumsum(n) - n, n)] = pts
+    return np.column_stack([z.real, z.imag]), offsets
 
 
 def polyline_length(points: np.ndarray) -> float:

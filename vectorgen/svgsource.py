@@ -22,8 +22,8 @@ import warnings
 import numpy as np
 
 from .errors import VectorgenError
-from .geometry import fit_transform, flatten_path_segments
-from .strokes import Strokes, check_finite, strokes_from_polylines
+from .geometry import fit_transform, flatten_runs
+from .strokes import Strokes, check_finite, clean
 
 SVG_NS = "http://www.w3.org/2000/svg"
 MAX_SVG_BYTES = 64 * 1024 * 1024
@@ -180,14 +180,15 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         return fit_transform(box, screen, flip_y=True)
 
     def flatten(scale):
-        polylines, inten, labels = [], [], []
+        runs, inten, labels = [], [], []
         for subs, intensity, label in raw_paths:
             for sp in subs:
                 if len(sp):
-                    polylines.append(flatten_path_segments(list(sp), tolerance_mm / scale))
+                    runs.append(list(sp))
                     inten.append(intensity)
                     labels.append(label)
-        out = strokes_from_polylines(polylines, np.array(inten), labels)
+        pts, offsets = flatten_runs(runs, tolerance_mm / scale)
+        out = clean(Strokes(pts, offsets, np.array(inten, dtype=float), labels))
         check_finite(out, path)
         return out
 
@@ -291,10 +292,25 @@ def _exact_arcs(p, el):
 
 
 def _seg_pts(seg):
+    """Points whose bounding box holds the segment: a Bezier's control points; an arc's end
+    points and the extremes of its ellipse in x and y that lie on the arc (scalar math: much
+    cheaper than svgpathtools' Arc.bbox, which dominated reading arc-heavy drawings)."""
     if hasattr(seg, "bpoints"):
         return list(seg.bpoints())
-    x0, x1, y0, y1 = seg.bbox()          # svgpathtools Arc.bbox: (xmin, xmax, ymin, ymax)
-    return [complex(x0, y0), complex(x1, y1)]
+    import math
+
+    phi = math.radians(seg.rotation)
+    c, s = math.cos(phi), math.sin(phi)
+    rx, ry = seg.radius.real, seg.radius.imag
+    t0, d = math.radians(seg.theta), math.radians(seg.delta)
+    out = [seg.start, seg.end]
+    for a in (math.atan2(-ry * s, rx * c), math.atan2(ry * c, rx * s)):   # dx = 0, dy = 0
+        for t in (a, a + math.pi):
+            swept = (t - t0) % (2 * math.pi) if d >= 0 else (t0 - t) % (2 * math.pi)
+            if swept <= abs(d):
+                out.append(seg.center + complex(rx * c * math.cos(t) - ry * s * math.sin(t),
+                                                rx * s * math.cos(t) + ry * c * math.sin(t)))
+    return out
 
 
 def _hidden(el) -> bool:
