@@ -80,27 +80,28 @@ def order_strokes(strokes: Strokes) -> Strokes:
     starts = strokes.points[offs[:-1]]
     ends = strokes.points[offs[1:] - 1]
     closed = np.all(starts == ends, axis=1)
-    ids = np.arange(S)
     order = np.empty(S, dtype=np.int64)
     flip = np.zeros(S, dtype=bool)
+    # Candidate entry points: row 2 i = start of stroke i, row 2 i + 1 = its end (entering
+    # there draws it backwards; never for a closed stroke). Used strokes get an infinite
+    # penalty, so each step is a handful of whole-array operations and one argmin.
+    cx = np.empty(2 * S)
+    cy = np.empty(2 * S)
+    cx[0::2], cy[0::2] = starts[:, 0], starts[:, 1]
+    cx[1::2], cy[1::2] = ends[:, 0], ends[:, 1]
+    pen = np.zeros(2 * S)
+    pen[1::2][closed] = np.inf
+    pen[0:2] = np.inf
     order[0] = 0
-    cur = ends[0]
-    live = ids[1:]
-    used = 1
-    while live.size:
-        ds = np.sum((starts[live] - cur) ** 2, axis=1)
-        de = np.sum((ends[live] - cur) ** 2, axis=1)
-        de[closed[live]] = np.inf
-        js, je = int(np.argmin(ds)), int(np.argmin(de))
-        if de[je] < ds[js]:
-            j, rev = je, True
-        else:
-            j, rev = js, False
-        pick = live[j]
+    x, y = ends[0]
+    for used in range(1, S):
+        dx = cx - x
+        dy = cy - y
+        k = int(np.argmin(dx * dx + dy * dy + pen))
+        pick, rev = k >> 1, bool(k & 1)
         order[used], flip[used] = pick, rev
-        cur = starts[pick] if rev else ends[pick]
-        used += 1
-        live = np.delete(live, j)
+        pen[2 * pick:2 * pick + 2] = np.inf
+        x, y = (starts[pick] if rev else ends[pick])
     # Rebuild the packed arrays in the new order (reversed strokes flipped) with index maps.
     counts = np.diff(offs)[order]
     new_offs = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
