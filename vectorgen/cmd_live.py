@@ -144,7 +144,7 @@ def cmd_play(args) -> int:
             if stopper.reason:
                 player.request_stop(stopper.reason)
     finally:
-        if producer is not None:
+        if producer is not None and producer.ident is not None:     # it was started
             producer.halt()
             producer.join(timeout=5.0)
         player.close()

@@ -34,6 +34,7 @@ from __future__ import annotations
 import inspect
 import math
 import os
+import re
 import sys
 import time
 import traceback
@@ -350,7 +351,8 @@ def scene_timeline(path: str, renderer, seconds: float | None, notes: list,
     sched = FixedSchedule(renderer.rate, scene.update_hz or 1.0,
                           scene.start_time if start is None else start)
     frame = scene.frame(renderer, sched.time(0))
-    notes.extend(frame.notes)
+    kinds: set = set()
+    _add_notes(notes, frame.notes, kinds)
     if seconds is None:
         return [(frame, 1)]
     total = max(1, math.ceil(seconds * renderer.rate))
@@ -369,7 +371,16 @@ def scene_timeline(path: str, renderer, seconds: float | None, notes: list,
         while sched.due(k + 1) <= pos:
             k += 1
         frame = scene.frame(renderer, sched.time(k))
-        notes.extend(frame.notes)
+        _add_notes(notes, frame.notes, kinds)
+
+
+def _add_notes(notes: list, new: list, kinds: set) -> None:
+    """Each kind of note once per file (frames differ only in the numbers they quote)."""
+    for n in new:
+        kind = re.sub(r"[-+0-9.]+", "#", n)
+        if kind not in kinds:
+            kinds.add(kind)
+            notes.append(n)
 
 
 __all__ = ["FixedSchedule", "Scene", "WallClockSchedule", "as_strokes", "circle", "clock", "dot",
