@@ -98,12 +98,15 @@ class JackServer:
 class Recorder:
     """Records the output ports of the next PortAudio client to appear on the server."""
 
+    _count = 0
+
     def __init__(self, server: JackServer, channels: int, seconds: float):
         import jack
 
         self.server = server
-        self.client = jack.Client(f"vgrec{os.getpid()}", servername=server.name,
-                                  no_start_server=True)
+        Recorder._count += 1
+        self.client = jack.Client(f"vgrec{os.getpid()}n{Recorder._count}",
+                                  servername=server.name, no_start_server=True)
         self.rate = self.client.samplerate
         self.channels = channels
         self.ports = [self.client.inports.register(f"in_{j + 1}") for j in range(channels)]
@@ -177,12 +180,18 @@ class PlayResult:
 
 def play_and_record(server: JackServer, args, channels: int, seconds: float,
                     timeout: float = 120.0, env: dict | None = None,
-                    interrupt_after: float | None = None) -> PlayResult:
+                    interrupt_after: float | None = None, auto_device: bool = True
+                    ) -> PlayResult:
     """Run `python -m vectorgen play ARGS` against the server and record its output
     (for about `seconds`); `interrupt_after` sends SIGINT (Ctrl-C) that long after the
     player's ports appeared."""
+    args = [str(a) for a in args]
+    if auto_device and "--device" not in args:
+        # the server's device by name, so that a machine with a sound card of its own (whose
+        # device would be PortAudio's default) still plays into the server under test
+        args += ["--device", "system JACK Audio"]
     rec = Recorder(server, channels, seconds + 5.0)
-    proc = subprocess.Popen([sys.executable, "-m", "vectorgen", "play", *map(str, args)],
+    proc = subprocess.Popen([sys.executable, "-m", "vectorgen", "play", *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             env=env or server.env, stdin=subprocess.DEVNULL)
     out = {}

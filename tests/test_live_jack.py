@@ -257,6 +257,18 @@ def test_device_by_name_substring_and_by_number(jack_server, tmp_path):
         check_clean(r)
         assert find_frame(r.capture, frame) >= 0
         assert "on 'system' (JACK Audio Connection Kit)" in r.stdout
+    # with no --device, the default output: the server's device when it is the only one
+    import subprocess
+    import sys
+
+    listing = subprocess.run([sys.executable, "-m", "vectorgen", "devices"], text=True,
+                             capture_output=True, env=jack_server.env, timeout=60).stdout
+    if len(re.findall(r"^\s*\*?\s*\d+\s", listing, flags=re.M)) == 1:
+        r = play_and_record(jack_server, ["--shape", "crosshair", "--seconds", 0.6], 2, 0.6,
+                            auto_device=False)
+        assert r.returncode == 0, r.stderr
+        check_clean(r)
+        assert find_frame(r.capture, frame) >= 0
 
 
 def test_a_name_matching_two_devices_fails_in_one_line(jack_server):
@@ -321,7 +333,11 @@ def test_devices_lists_the_jack_device(jack_server):
                  rows[0])
     assert m, rows[0]
     # the server's own account of itself, through JACK-Client
-    assert m.group(1) == "*" and int(m.group(3)) == len(playback) == 4
+    assert int(m.group(3)) == len(playback) == 4
+    marked = [ln for ln in r.stdout.splitlines() if re.match(r"\s*\*\s*\d+\s", ln)]
+    assert len(marked) == 1                     # one default, and with no sound card it is
+    if len([ln for ln in r.stdout.splitlines() if re.match(r"\s*\*?\s*\d+\s", ln)]) == 1:
+        assert m.group(1) == "*"                # the server's device
     assert int(m.group(4)) == rate == RATE
 
 
