@@ -166,7 +166,11 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     stroke_of_vertex = np.repeat(np.arange(S), np.diff(offs))
 
     # Global arc-length axis: strokes laid end to end with a gap between them.
-    seg = np.hypot(*np.diff(pts, axis=0).T) if P > 1 else np.zeros(0)
+    # (x and y as contiguous 1-D arrays: whole-array arithmetic on them is several times
+    # faster than on the columns of an (P, 2) array or with fancy indexing)
+    px, py = np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1])
+    dx, dy = np.diff(px), np.diff(py)
+    seg = np.sqrt(dx * dx + dy * dy)
     if P > 1:
         seg[last[:-1]] = GAP
     s = np.concatenate([[0.0], np.cumsum(seg)])
@@ -177,10 +181,11 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     interior = np.ones(P, dtype=bool)
     interior[first] = False
     interior[last] = False
-    iv = np.flatnonzero(interior)
-    if iv.size:
-        sharp[iv] = _turn_deg(pts[iv] - pts[iv - 1], pts[iv + 1] - pts[iv]) \
-            > timing.corner_angle_deg
+    if P > 2:
+        # turn > corner angle  <=>  cos(turn) = d_in . d_out / (|d_in| |d_out|) < cos(angle)
+        dot = dx[:-1] * dx[1:] + dy[:-1] * dy[1:]
+        norm = np.sqrt((dx[:-1] * dx[:-1] + dy[:-1] * dy[:-1]) * (dx[1:] * dx[1:] + dy[1:] * dy[1:]))
+        sharp[1:-1] = interior[1:-1] & (dot < np.cos(np.radians(timing.corner_angle_deg)) * norm)
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke.
     boundary = np.zeros(P, dtype=bool)
@@ -256,37 +261,35 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
         blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o])
     blk_size = blk_move + blk_rep
     lit_total = int(blk_size.sum())
-    blk = np.repeat(np.arange(len(blk_size)), blk_size)
     k = np.arange(lit_total) - np.repeat(np.cumsum(blk_size) - blk_size, blk_size)
-    param = blk_base[blk] + blk_step[blk] * np.minimum(k + 1, blk_move[blk])
-    lit_xy = np.column_stack([np.interp(param, s, pts[:, 0]), np.interp(param, s, pts[:, 1])])
-    lit_stroke = blk_stroke[blk]
+    param = np.repeat(blk_base, blk_size) + np.repeat(blk_step, blk_size) * \
+        np.minimum(k + 1, np.repeat(blk_move, blk_size))
+    lit_x, lit_y = np.interp(param, s, px), np.interp(param, s, py)
 
     # Blanked blocks: jump samples then settle samples at the destination.
     blank_size = jumps + settles
     blank_total = int(blank_size.sum())
-    bj = np.repeat(np.arange(S), blank_size)
     kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
-    frac = np.minimum(kb + 1, jumps[bj]) / np.maximum(jumps[bj], 1)
-    blank_xy = jump_from[bj] + (jump_to[bj] - jump_from[bj]) * frac[:, None]
+    frac = np.minimum(kb + 1, np.repeat(jumps, blank_size)) / \
+        np.repeat(np.maximum(jumps, 1), blank_size)
+    blank_x = np.repeat(jump_from[:, 0], blank_size) + \
+        np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
+    blank_y = np.repeat(jump_from[:, 1], blank_size) + \
+        np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
 
-    # Interleave: stroke i's lit samples, then its jump to stroke i + 1.
-    lit_count = np.bincount(lit_stroke, minlength=S)
-    per = lit_count + blank_size
-    frame_start = np.cumsum(per) - per
-    lit_dest = (np.arange(lit_total) - np.repeat(np.cumsum(lit_count) - lit_count, lit_count)
-                + np.repeat(frame_start, lit_count))
-    blank_dest = kb + np.repeat(frame_start + lit_count, blank_size)
+    # Interleave: stroke i's lit samples, then its jump to stroke i + 1 (both in order, so
+    # boolean masks place them).
+    lit_count = np.bincount(blk_stroke, weights=blk_size, minlength=S).astype(np.int64)
+    runs = np.column_stack([lit_count, blank_size]).ravel()
     n = lit_total + blank_total
-    points = np.empty((n, 2))
-    points[lit_dest] = lit_xy
-    points[blank_dest] = blank_xy
-    lit = np.zeros(n, dtype=bool)
-    lit[lit_dest] = True
-    stroke_idx = np.full(n, -1, dtype=np.int64)
-    stroke_idx[lit_dest] = lit_stroke
-    intensity = np.zeros(n)
-    intensity[lit_dest] = strokes.intensity[lit_stroke]
+    lit = np.repeat(np.tile(np.array([True, False]), S), runs)
+    x = np.empty(n)
+    y = np.empty(n)
+    x[lit], y[lit] = lit_x, lit_y
+    x[~lit], y[~lit] = blank_x, blank_y
+    points = np.column_stack([x, y])
+    stroke_idx = np.repeat(np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), runs)
+    intensity = np.repeat(np.column_stack([strokes.intensity, np.zeros(S)]).ravel(), runs)
 
     return Plan(points, lit, intensity, stroke_idx, strokes,
                 drawn_length_mm=float(lengths.sum()),
