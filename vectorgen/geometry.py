@@ -226,7 +226,7 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
         seg_a.append(pts[:-1])
         seg_b.append(pts[1:])
         seg_sid.append(np.full(len(pts) - 1, i))
-    pieces: list = [(int(i), strokes.stroke(int(i))) for i in np.flatnonzero(all_in)]
+    pieces: list = [(int(i), strokes.stroke(int(i)), False) for i in np.flatnonzero(all_in)]
     if seg_a:
         p0, p1, sid = np.concatenate(seg_a), np.concatenate(seg_b), np.concatenate(seg_sid)
         a, b = p0.copy(), p1.copy()
@@ -251,13 +251,13 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
         start = keep & (new_stroke | ~prev_keep | ~joined)
         kept = np.flatnonzero(keep)
         for rows in (np.split(kept, np.flatnonzero(start[kept])[1:]) if kept.size else []):
-            pieces.append((int(sid[rows[0]]), np.vstack([a[rows[:1]], b[rows]])))
+            pieces.append((int(sid[rows[0]]), np.vstack([a[rows[:1]], b[rows]]), True))
     pieces.sort(key=lambda piece: piece[0])            # stable: runs stay in drawing order
     from .strokes import strokes_from_polylines
 
-    polys = [_onto_area(p, screen) for _i, p in pieces]
-    out = strokes_from_polylines(polys, np.array([strokes.intensity[i] for i, _p in pieces]),
-                                 [strokes.labels[i] for i, _p in pieces])
+    polys = [_onto_area(p, screen) if cut_here else p for _i, p, cut_here in pieces]
+    out = strokes_from_polylines(polys, np.array([strokes.intensity[i] for i, _p, _c in pieces]),
+                                 [strokes.labels[i] for i, _p, _c in pieces])
     return out, int((~all_in).sum())
 
 
