@@ -169,3 +169,27 @@ def test_frames_of_the_wrong_shape_are_refused():
         p.submit(5, np.zeros((10, 3), np.float32), 1)
     with pytest.raises(VectorgenError, match="empty"):
         Player(np.zeros((0, 2), np.float32), RATE, np.zeros(2), np.zeros(2, bool))
+
+
+def test_priming_makes_the_first_updates_before_the_stream_starts():
+    from vectorgen.live import Producer
+    from vectorgen.scene import FixedSchedule
+
+    made = []
+
+    def render(k):
+        made.append(k)
+        return distinct_frame(k, 300)
+
+    p = Player(distinct_frame(0, 300), RATE, np.zeros(2, np.float32), np.zeros(2, bool),
+               stop_after=RATE)
+    prod = Producer(p, render, FixedSchedule(RATE, 50.0))
+    prod.prime(0.25)
+    # updates every 20 ms: 1..12 are due within 0.25 s (12 * 960 = 11520 <= 12000 samples)
+    assert made == list(range(1, 13))
+    assert [f.due for f in p.pending] == [960 * k for k in range(1, 13)]
+    out = run(p, [512])[p.ramp_samples:p.ramp_samples + 12000]
+    # played with no producer thread at all: each primed update appears at its boundary
+    firsts = out[np.flatnonzero(np.diff(out[:, 0]) != 0) + 1, 0]
+    assert np.round(firsts * 64 - 1).astype(int).tolist() == list(range(1, 13))
+    assert p.late == 0

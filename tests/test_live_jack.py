@@ -109,7 +109,7 @@ def test_frame_loops_exactly_and_stop_ramps_to_park(jack_server, tmp_path, sourc
         want = raised_cosine(park, frame[0], RAMP)
         want[:, zmask] = park[zmask]
         np.testing.assert_allclose(cap[start - RAMP:start], want, atol=2e-7)
-    assert "caution: high voltage" in r.stderr and "stationary spot" in r.stderr
+    assert "caution: lethal high voltage" in r.stderr and "stationary spot" in r.stderr
     assert "end of --seconds" in r.stdout
 
 

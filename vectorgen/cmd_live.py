@@ -12,7 +12,7 @@ from .errors import VectorgenError
 from .sources import add_source_arguments
 
 CAUTIONS = (
-    "caution: high voltage: the tube's anode and deflection circuits can kill; keep the covers on.",
+    "caution: lethal high voltage in the tube's anode and deflection circuits: covers on.",
     "caution: a bright stationary spot burns the phosphor: keep brightness low until the "
     "picture is confirmed.",
 )
@@ -117,6 +117,7 @@ def cmd_play(args) -> int:
     if animated:
         producer = live.Producer(player, lambda k: scene.frame(renderer, schedule.time(k)).signal,
                                  schedule)
+        producer.prime()
     for line in CAUTIONS:
         print(f"vectorgen: {line}", file=sys.stderr)
 

@@ -49,6 +49,7 @@ RAMP_MS = 5.0           # start and stop ramps
 PARK_HOLD_MS = 20.0     # hold at the park position before the stream stops
 MAX_PENDING = 64        # prepared frames waiting in the queue at most
 LOOKAHEAD_S = 0.5       # render scene updates up to this long before they are due
+PRIME_S = 0.25          # updates due this soon after the start are made before it
 
 
 def sounddevice():
@@ -425,6 +426,19 @@ class Producer(threading.Thread):
 
     def halt(self) -> None:
         self._halt.set()
+
+    def prime(self, seconds: float = PRIME_S) -> None:
+        """Before the stream starts: make the updates due within `seconds` (in this thread),
+        so a slow first render, or a slow start of the thread, cannot make them late."""
+        p, sched = self.player, self.schedule
+        limit = int(seconds * p.rate)
+        while len(p.pending) < MAX_PENDING:
+            due = sched.due(self.k)
+            if due > limit or (p.stop_after is not None and due >= p.stop_after):
+                return
+            p.submit(due, self.render(self.k), self.k)
+            self.rendered += 1
+            self.k += 1
 
     def _wait_for_room(self, due: int) -> bool:
         p = self.player
