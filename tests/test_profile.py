@@ -176,9 +176,14 @@ def test_random_profiles_round_trip_drive_and_mm(prof, seed):
     u = np.random.default_rng(seed).uniform(-1, 1, size=(200, 2))
     p = model.drive_to_mm(u)
     np.testing.assert_allclose(model.mm_to_drive(p), u, atol=1e-9)
-    w, h = prof.screen.half_extent
-    q = np.random.default_rng(seed + 1).uniform(-1, 1, size=(200, 2)) * [w, h]
-    np.testing.assert_allclose(model.drive_to_mm(model.mm_to_drive(q)), q, atol=1e-7)
+    # Any point of the face back and forth, for distortion of a few per cent (real yokes):
+    # with strong barrel the corners of the face lie beyond the fold of the image of the drive
+    # square, where the engine rightly refuses (scipy's fsolve finds no root there either).
+    d = prof.deflection
+    if max(abs(d.k_radial), abs(d.k_x), abs(d.k_y)) <= 0.05:
+        w, h = prof.screen.half_extent
+        q = np.random.default_rng(seed + 1).uniform(-1, 1, size=(200, 2)) * [w, h]
+        np.testing.assert_allclose(model.drive_to_mm(model.mm_to_drive(q)), q, atol=1e-7)
 
 
 def test_inverse_matches_an_independent_root_finder():
