@@ -180,9 +180,10 @@ class PlayResult:
 
 def play_and_record(server: JackServer, args, channels: int, seconds: float,
                     timeout: float = 120.0, env: dict | None = None,
-                    interrupt_after: float | None = None, auto_device: bool = True
-                    ) -> PlayResult:
-    """Run `python -m vectorgen play ARGS` against the server and record its output
+                    interrupt_after: float | None = None, auto_device: bool = True,
+                    command=("play",)) -> PlayResult:
+    """Run `python -m vectorgen play ARGS` (or another live `command`) against the server and
+    record its output
     (for about `seconds`); `interrupt_after` sends SIGINT (Ctrl-C) that long after the
     player's ports appeared."""
     args = [str(a) for a in args]
@@ -191,7 +192,7 @@ def play_and_record(server: JackServer, args, channels: int, seconds: float,
         # device would be PortAudio's default) still plays into the server under test
         args += ["--device", "system JACK Audio"]
     rec = Recorder(server, channels, seconds + 5.0)
-    proc = subprocess.Popen([sys.executable, "-m", "vectorgen", "play", *args],
+    proc = subprocess.Popen([sys.executable, "-m", "vectorgen", *command, *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             env=env or server.env, stdin=subprocess.DEVNULL)
     out = {}

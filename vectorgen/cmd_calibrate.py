@@ -53,9 +53,17 @@ def cmd_pattern(args) -> int:
     from .render import report_line
     from .sinks import SIGNAL_EXTENSIONS, check_output_path, write_signal
 
-    check_output_path(args.output, SIGNAL_EXTENSIONS)
+    if args.output is None and not args.play:
+        raise VectorgenError("give -o OUT to write the pattern to a file, or --play to show it "
+                             "live (or both)")
+    if args.play:
+        from . import live
+
+        live.sounddevice()                  # PortAudio present? (before any file is written)
+    if args.output is not None:
+        check_output_path(args.output, SIGNAL_EXTENSIONS)
     check_output_path(args.sheet, (".csv",))
-    if os.path.abspath(args.sheet) == os.path.abspath(args.output):
+    if args.output is not None and os.path.abspath(args.sheet) == os.path.abspath(args.output):
         raise VectorgenError("the signal (-o) and the sheet (--sheet) must be different files")
     if args.preview:
         check_output_path(args.preview, (".png",))
@@ -73,20 +81,26 @@ def cmd_pattern(args) -> int:
     if args.mark == "dot":
         _warn("dot marks hold the beam on a few spots: keep the brightness low, a dwelling spot "
               "burns the phosphor")
-    write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate, frame.names,
-                 pcm16=args.pcm16)
+    if args.output is not None:
+        write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
+                     frame.names, pcm16=args.pcm16)
     backup = write_sheet(args.sheet, pat.names, pat.drive)
     if args.preview:
         write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
                                                frame.plan.lit))
     if not args.quiet:
         rep = frame.report(profile)
-        print(report_line(rep) + f"; wrote {repeats} frame(s) to {args.output}")
+        print(report_line(rep) + (f"; wrote {repeats} frame(s) to {args.output}"
+                                  if args.output is not None else ""))
         print(f"{args.kind} pattern: {len(pat.names)} targets; "
               + "; ".join(pat.notes) + f"; sheet {args.sheet}"
               + (f" (previous sheet kept as {backup})" if backup else ""))
         print("measure where each target's centre lands, in mm from the centre of the face "
               "(+x right, +y up), and fill measured_x_mm, measured_y_mm")
+    if args.play:
+        from .cmd_live import play_frame
+
+        return play_frame(frame, profile, args.device, args.seconds, args.quiet)
     return 0
 
 
@@ -232,14 +246,19 @@ def register(sub) -> None:
     p = sub.add_parser(
         "pattern", help="draw a calibration pattern and write its measurement sheet",
         description="Draw a test pattern at known drive positions, through the profile in use, "
-        "into a signal file like `render` (play it with `vectorgen play` where available), and "
+        "into a signal file like `render` (-o) or live through the audio interface (--play), and "
         "write the measurement sheet: one CSV row per target, columns point, drive_x, drive_y, "
         "measured_x_mm, measured_y_mm, the measured columns empty for you to fill in (mm from "
         "the centre of the face, +x right, +y up). grid: ROWS x COLS targets for the full fit "
         "and linearity; box: centre and four corners for a quick gain trim; circle: a circle "
         "in the drawing with ticks every 45 degrees, for an aspect check.")
     p.add_argument("kind", choices=("grid", "box", "circle"), metavar="grid|box|circle")
-    p.add_argument("-o", "--output", required=True, metavar="OUT",
+    p.add_argument("--play", action="store_true",
+                   help="show the pattern live through the audio interface (until Ctrl-C or "
+                        "--seconds)")
+    p.add_argument("--device", metavar="NUMBER|NAME",
+                   help="with --play: the output device (see 'vectorgen devices')")
+    p.add_argument("-o", "--output", default=None, metavar="OUT",
                    help="signal file: .wav, .csv, .raw or .bin")
     p.add_argument("--sheet", required=True, metavar="SHEET.csv",
                    help="measurement sheet to write (an existing file is kept as SHEET.csv.bakN)")
@@ -250,7 +269,8 @@ def register(sub) -> None:
                         "profile (default 0.9)")
     p.add_argument("--mark", choices=("cross", "dot"), default="cross",
                    help="mark each target with a small cross (default) or a dot")
-    p.add_argument("--seconds", type=float, default=None, help="repeat frames to this duration")
+    p.add_argument("--seconds", type=float, default=None,
+                   help="repeat frames to this duration; with --play, stop after it")
     p.add_argument("--pcm16", action="store_true", help="16-bit integer samples")
     p.add_argument("--preview", metavar="FILE.png", help="also write a phosphor preview")
     p.add_argument("-q", "--quiet", action="store_true")

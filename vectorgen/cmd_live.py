@@ -118,12 +118,20 @@ def cmd_play(args) -> int:
         producer = live.Producer(player, lambda k: scene.frame(renderer, schedule.time(k)).signal,
                                  schedule)
         producer.prime()
+    return run_stream(player, producer, device, rate, channels, args.quiet)
+
+
+def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) -> int:
+    """Print the cautions, run the stream until it ends (--seconds, Ctrl-C, SIGTERM or an error),
+    park, print the summary line; raise the producer's or the callback's error as one line."""
+    from . import live
+
     for line in CAUTIONS:
         print(f"vectorgen: {line}", file=sys.stderr)
 
     old_interval = sys.getswitchinterval()
     sys.setswitchinterval(0.0005)        # the audio callback needs the GIL promptly
-    tty = sys.stdout.isatty() and not args.quiet
+    tty = sys.stdout.isatty() and not quiet
     started = time.monotonic()
     stop_asked = None
     try:
@@ -131,7 +139,7 @@ def cmd_play(args) -> int:
             player.start(device.index)
             if producer is not None:
                 producer.start()
-            step = live.wait_interval(args.seconds)
+            step = live.wait_interval(player_seconds(player))
             while not player.wait(step):
                 if stopper.reason and stop_asked is None:
                     player.request_stop(stopper.reason)
@@ -171,6 +179,25 @@ def cmd_play(args) -> int:
         exc = player.callback_error
         raise VectorgenError(f"audio callback failed: {type(exc).__name__}: {exc}")
     return 0
+
+
+def player_seconds(player) -> float | None:
+    return None if player.stop_after is None else player.stop_after / player.rate
+
+
+def play_frame(frame, profile, device_spec, seconds: float | None, quiet: bool) -> int:
+    """Play one rendered frame in a loop on the device given by --device (a static drawing,
+    a calibration pattern)."""
+    from . import live
+
+    _check_seconds(seconds)
+    device = live.find_device(device_spec)
+    channels = frame.signal.shape[1]
+    live.check_device(device, channels, frame.rate)
+    park, zmask = live.park_levels(profile.output, channels)
+    stop_after = None if seconds is None else max(1, int(round(seconds * frame.rate)))
+    player = live.Player(frame.signal, frame.rate, park, zmask, stop_after=stop_after)
+    return run_stream(player, None, device, frame.rate, channels, quiet)
 
 
 def register(sub) -> None:
