@@ -204,6 +204,8 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     number of strokes that were cut or dropped."""
     if not strokes.count:
         return strokes, 0
+    if _bounds_inside(strokes.points, screen):
+        return strokes, 0                   # the usual case: one min/max, no per-stroke work
     inside = inside_mask(strokes.points, screen)
     all_in = np.logical_and.reduceat(inside, strokes.offsets[:-1])
     if all_in.all():
@@ -226,7 +228,7 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
         seg_a.append(pts[:-1])
         seg_b.append(pts[1:])
         seg_sid.append(np.full(len(pts) - 1, i))
-    pieces: list = [(int(i), strokes.stroke(int(i)), False) for i in np.flatnonzero(all_in)]
+    pieces = []                         # (stroke index, points) of the cut strokes' kept runs
     if seg_a:
         p0, p1, sid = np.concatenate(seg_a), np.concatenate(seg_b), np.concatenate(seg_sid)
         a, b = p0.copy(), p1.copy()
@@ -251,14 +253,53 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
         start = keep & (new_stroke | ~prev_keep | ~joined)
         kept = np.flatnonzero(keep)
         for rows in (np.split(kept, np.flatnonzero(start[kept])[1:]) if kept.size else []):
-            pieces.append((int(sid[rows[0]]), np.vstack([a[rows[:1]], b[rows]]), True))
-    pieces.sort(key=lambda piece: piece[0])            # stable: runs stay in drawing order
-    from .strokes import strokes_from_polylines
+            pieces.append((int(sid[rows[0]]), _onto_area(np.vstack([a[rows[:1]], b[rows]]),
+                                                         screen)))
+    # The result in drawing order: every stretch of untouched strokes is one slice of the
+    # packed points, with the cut strokes' runs (in their own order) between the stretches.
+    offs = strokes.offsets
+    chunks, counts, sids = [], [], []
+    done = 0                            # strokes before this index are laid out
+    j = 0                               # next piece
+    for i in [*cut.tolist(), strokes.count]:
+        if i > done:                    # untouched strokes done .. i - 1
+            chunks.append(strokes.points[offs[done]:offs[i]])
+            counts.append(np.diff(offs[done:i + 1]))
+            sids.append(np.arange(done, i))
+        while j < len(pieces) and pieces[j][0] == i:
+            chunks.append(pieces[j][1])
+            counts.append([len(pieces[j][1])])
+            sids.append([i])
+            j += 1
+        done = i + 1
+    if not chunks:
+        return Strokes.empty(), int((~all_in).sum())
+    counts = np.concatenate(counts).astype(np.int64)
+    sids = np.concatenate(sids).astype(np.int64)
+    from .strokes import clean
 
-    polys = [_onto_area(p, screen) if cut_here else p for _i, p, cut_here in pieces]
-    out = strokes_from_polylines(polys, np.array([strokes.intensity[i] for i, _p, _c in pieces]),
-                                 [strokes.labels[i] for i, _p, _c in pieces])
+    out = clean(Strokes(np.concatenate(chunks).astype(float, copy=False),
+                        np.concatenate([[0], np.cumsum(counts)]),
+                        strokes.intensity[sids].astype(float),
+                        [strokes.labels[i] for i in sids.tolist()]))
     return out, int((~all_in).sum())
+
+
+def _bounds_inside(points: np.ndarray, screen, eps: float = 1e-9) -> bool:
+    """Whether every point lies inside the usable area, from the bounding box alone: the same
+    answer as inside_mask(...).all() for a rectangle; for a round face True only when the box's
+    corners are inside too (otherwise the per-point test decides)."""
+    if not len(points):
+        return True
+    x, y = points[:, 0], points[:, 1]       # (column reductions: min(axis=0) is slow)
+    ax, ay = max(-x.min(), x.max()), max(-y.min(), y.max())
+    if not (np.isfinite(ax) and np.isfinite(ay)):
+        return False
+    if screen.shape == "round":
+        # the farthest corner of the box, with a hair of margin for hypot's rounding
+        return bool(np.hypot(ax, ay) <= screen.diameter_mm / 2.0 * (1 + eps) * (1 - 1e-12))
+    w, h = screen.half_extent
+    return bool(ax <= w * (1 + eps) and ay <= h * (1 + eps))
 
 
 def _onto_area(points: np.ndarray, screen) -> np.ndarray:
