@@ -76,42 +76,69 @@ def order_strokes(strokes: Strokes) -> Strokes:
     S = strokes.count
     if S <= 2:
         return strokes
-    offs = strokes.offsets
-    starts = strokes.points[offs[:-1]]
-    ends = strokes.points[offs[1:] - 1]
-    closed = np.all(starts == ends, axis=1)
+    order, flip = _greedy_order(strokes)
+    # Rebuild the packed arrays in the new order, reversed strokes flipped: one slice (a view)
+    # per stroke and one copy, rather than per-vertex index arrays.
+    pts, offs = strokes.points, strokes.offsets.tolist()
+    parts = []
+    for i, f in zip(order.tolist(), flip.tolist()):
+        part = pts[offs[i]:offs[i + 1]]
+        parts.append(part[::-1] if f else part)
+    counts = np.diff(strokes.offsets)[order]
+    new_offs = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    return Strokes(np.concatenate(parts), new_offs, strokes.intensity[order],
+                   [strokes.labels[i] for i in order])
+
+
+def _greedy_order(strokes: Strokes) -> tuple[np.ndarray, np.ndarray]:
+    """(order, reversed) of the greedy nearest-entry walk. Candidate entry points: 2 i = the
+    start of stroke i, 2 i + 1 = its end (entering there draws it backwards; never for a closed
+    stroke). Each step is one squared distance dx dx + dy dy from the beam to every candidate
+    (x and y as contiguous 1-D arrays, the arithmetic in preallocated buffers) and one argmin
+    (the first of equal minima). A used candidate is moved to infinity, so its distance is
+    infinite, and once most are used up they are dropped (order kept, so ties still go to the
+    lowest candidate)."""
+    S = strokes.count
+    pts, offs = strokes.points, strokes.offsets
+    cx, cy = np.empty(2 * S), np.empty(2 * S)
+    cx[0::2], cx[1::2] = pts[offs[:-1], 0], pts[offs[1:] - 1, 0]
+    cy[0::2], cy[1::2] = pts[offs[:-1], 1], pts[offs[1:] - 1, 1]
+    ex, ey = cx.tolist(), cy.tolist()   # the beam leaves by the other end: candidate k ^ 1
+    closed = (cx[0::2] == cx[1::2]) & (cy[0::2] == cy[1::2])
+    row_of = np.arange(2 * S)           # where each candidate is in cx, cy (-1: used or never)
+    row_of[1::2][closed] = -1
+    row_of[0:2] = -1                    # stroke 0 is drawn first, forwards
+    cx[row_of < 0] = np.inf
+    ids = np.arange(2 * S)              # the candidate at each position of cx, cy
+    live = int((row_of >= 0).sum())
     order = np.empty(S, dtype=np.int64)
     flip = np.zeros(S, dtype=bool)
-    # Candidate entry points: row 2 i = start of stroke i, row 2 i + 1 = its end (entering
-    # there draws it backwards; never for a closed stroke). Used strokes get an infinite
-    # penalty, so each step is a handful of whole-array operations and one argmin.
-    cx = np.empty(2 * S)
-    cy = np.empty(2 * S)
-    cx[0::2], cy[0::2] = starts[:, 0], starts[:, 1]
-    cx[1::2], cy[1::2] = ends[:, 0], ends[:, 1]
-    pen = np.zeros(2 * S)
-    pen[1::2][closed] = np.inf
-    pen[0:2] = np.inf
     order[0] = 0
-    x, y = ends[0]
+    bx, by = np.empty(2 * S), np.empty(2 * S)
+    subtract, multiply, add = np.subtract, np.multiply, np.add
+    e = 1                               # the beam is at the end of stroke 0
     for used in range(1, S):
-        dx = cx - x
-        dy = cy - y
-        k = int(np.argmin(dx * dx + dy * dy + pen))
-        pick, rev = k >> 1, bool(k & 1)
-        order[used], flip[used] = pick, rev
-        pen[2 * pick:2 * pick + 2] = np.inf
-        x, y = (starts[pick] if rev else ends[pick])
-    # Rebuild the packed arrays in the new order (reversed strokes flipped) with index maps.
-    counts = np.diff(offs)[order]
-    new_offs = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-    within = np.arange(new_offs[-1]) - np.repeat(new_offs[:-1], counts)
-    src_first = np.repeat(offs[:-1][order], counts)
-    src_last = np.repeat(offs[1:][order] - 1, counts)
-    f = np.repeat(flip[:S], counts)
-    src = np.where(f, src_last - within, src_first + within)
-    return Strokes(strokes.points[src], new_offs, strokes.intensity[order],
-                   [strokes.labels[i] for i in order])
+        subtract(cx, ex[e], out=bx)
+        multiply(bx, bx, out=bx)
+        subtract(cy, ey[e], out=by)
+        multiply(by, by, out=by)
+        add(bx, by, out=bx)
+        k = int(ids[int(bx.argmin())])
+        pick = k >> 1
+        order[used], flip[used] = pick, k & 1
+        e = k ^ 1
+        for q in (2 * pick, 2 * pick + 1):
+            r = int(row_of[q])
+            if r >= 0:
+                cx[r] = np.inf
+                row_of[q] = -1
+                live -= 1
+        if 4 * live < len(ids) and len(ids) > 256:
+            keep = row_of[ids] >= 0
+            cx, cy, ids = cx[keep], cy[keep], ids[keep]
+            row_of[ids] = np.arange(len(ids))
+            bx, by = np.empty(len(ids)), np.empty(len(ids))
+    return order, flip
 
 
 def _turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:
