@@ -36,6 +36,9 @@ def crosshair(screen, arm: float | None = None) -> Strokes:
         labels=["crosshair horizontal", "crosshair vertical", "crosshair centre"])
 
 
+MAX_GRID_DOTS = 10_000      # crossings, each a dot the beam dwells on
+
+
 def grid_positions(screen, step: float) -> tuple[np.ndarray, np.ndarray]:
     """Grid line positions (mm) on each axis: multiples of `step` through the centre that lie
     inside the usable area."""
@@ -48,11 +51,17 @@ def grid_positions(screen, step: float) -> tuple[np.ndarray, np.ndarray]:
 def grid(screen, step: float = 10.0) -> Strokes:
     """Lines every `step` mm through the centre and a dot at every crossing, all at known
     millimetre positions. On a round face the lines are cut to the circle by the engine."""
-    if not step > 0:
-        from vectorgen.errors import VectorgenError
+    from vectorgen.errors import VectorgenError
+
+    if not (step > 0 and np.isfinite(step)):
         raise VectorgenError(f"grid step must be > 0 mm (got {step})")
-    xs, ys = grid_positions(screen, step)
     w, h = screen.half_extent
+    nx, ny = 2 * np.floor(w / step) + 1, 2 * np.floor(h / step) + 1
+    if nx * ny > MAX_GRID_DOTS:
+        least = np.sqrt(4 * w * h / MAX_GRID_DOTS)
+        raise VectorgenError(f"a grid step of {step:g} mm makes {nx * ny:.3g} crossings: use a "
+                             f"step of at least {least:.2g} mm")
+    xs, ys = grid_positions(screen, step)
     lines = [[(x, -h), (x, h)] for x in xs] + [[(-w, y), (w, y)] for y in ys]
     labels = [f"grid line x={x:g} mm" for x in xs] + [f"grid line y={y:g} mm" for y in ys]
     gx, gy = np.meshgrid(xs, ys)

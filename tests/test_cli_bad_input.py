@@ -110,6 +110,7 @@ BAD_ARGS = [
     (["--shape", "grid", "--seconds", "inf"], "--seconds"),
     (["--shape", "grid", "--tolerance", "0"], "--tolerance"),
     (["--shape", "grid", "--grid-step", "-5"], "grid step"),
+    (["--shape", "grid", "--grid-step", "1e-9"], "crossings"),
     (["--shape", "circle", "--radius", "-1"], "--radius"),
     (["--shape", "circle", "--radius", "1e300"], "finite number"),
     (["--shape", "clock", "--time", "25:00"], "--time"),
