@@ -12,7 +12,8 @@ from .errors import VectorgenError
 from .sources import add_source_arguments
 
 CAUTIONS = (
-    "caution: lethal high voltage in the tube's anode and deflection circuits: covers on.",
+    "caution: lethal high voltage in the tube's anode and deflection circuits: covers on; "
+    "follow local electrical codes and qualified practice.",
     "caution: a bright stationary spot burns the phosphor: keep brightness low until the "
     "picture is confirmed.",
 )
