@@ -8,9 +8,6 @@ helpers only produce data; the checks live in the test modules.
 
 from __future__ import annotations
 
-import os
-import subprocess
-import sys
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -99,15 +96,6 @@ def write_profile(path, profile) -> str:
 
     Path(path).write_text(profile_text(profile), encoding="utf-8")
     return str(path)
-
-
-def run_cli(*args, cwd=None, timeout: float = 180) -> subprocess.CompletedProcess:
-    """`python -m vectorgen ARGS...` in a child process (text output captured)."""
-    env = dict(os.environ)
-    env.pop("VECTORGEN_DEBUG", None)
-    env["PYTHONPATH"] = str(REPO) + os.pathsep + env.get("PYTHONPATH", "")
-    return subprocess.run([sys.executable, "-m", "vectorgen", *map(str, args)], cwd=cwd,
-                          capture_output=True, text=True, timeout=timeout, env=env)
 
 
 def fill_sheet(path, tube: SyntheticTube, noise_mm: float = 0.2, seed: int = 0,

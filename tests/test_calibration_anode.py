@@ -8,7 +8,8 @@ import numpy as np
 import pytest
 from scipy import constants
 
-from calib_helpers import bench_profile, default_tube, run_cli, snapshot, write_profile
+from calib_helpers import bench_profile, default_tube, snapshot, write_profile
+from render_helpers import run_cli
 from calibration.anode import gain_factor, rescale_profile, rest_voltage_kv
 from vectorgen.cli import main
 from vectorgen.deflection import DeflectionModel

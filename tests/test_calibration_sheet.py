@@ -8,7 +8,8 @@ import io
 import numpy as np
 import pytest
 
-from calib_helpers import bench_profile, default_tube, run_cli, snapshot
+from calib_helpers import bench_profile, default_tube, snapshot
+from render_helpers import run_cli
 from calibration.patterns import make_pattern
 from calibration.sheet import COLUMNS, HEADER, read_sheet, sheet_text, write_sheet
 from vectorgen.cli import main
