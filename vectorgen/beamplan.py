@@ -190,46 +190,57 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     pts, offs = strokes.points, strokes.offsets
     S, P = strokes.count, len(pts)
     first, last = offs[:-1], offs[1:] - 1
-    stroke_of_vertex = np.repeat(np.arange(S), np.diff(offs))
 
     # Global arc-length axis: strokes laid end to end with a gap between them.
     # (x and y as contiguous 1-D arrays: whole-array arithmetic on them is several times
-    # faster than on the columns of an (P, 2) array or with fancy indexing)
+    # faster than on the columns of an (P, 2) array or with fancy indexing; in-place where a
+    # temporary would only be thrown away)
     px, py = np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1])
     dx, dy = np.diff(px), np.diff(py)
-    seg = np.sqrt(dx * dx + dy * dy)
+    sq = dx * dx                        # squared segment lengths dx dx + dy dy
+    sq += dy * dy
+    seg = np.sqrt(sq)
     if P > 1:
         seg[last[:-1]] = GAP
-    s = np.concatenate([[0.0], np.cumsum(seg)])
+    s = np.empty(P)
+    s[0] = 0.0
+    np.cumsum(seg, out=s[1:])
+    del seg
     lengths = s[last] - s[first]
+    is_last = np.zeros(P, dtype=bool)
+    is_last[last] = True
 
     # Sharp corners (interior vertices only).
     sharp = np.zeros(P, dtype=bool)
-    interior = np.ones(P, dtype=bool)
-    interior[first] = False
-    interior[last] = False
     if P > 2:
         # turn > corner angle  <=>  cos(turn) = d_in . d_out / (|d_in| |d_out|) < cos(angle)
-        dot = dx[:-1] * dx[1:] + dy[:-1] * dy[1:]
-        norm = np.sqrt((dx[:-1] * dx[:-1] + dy[:-1] * dy[:-1]) * (dx[1:] * dx[1:] + dy[1:] * dy[1:]))
-        sharp[1:-1] = interior[1:-1] & (dot < np.cos(np.radians(timing.corner_angle_deg)) * norm)
+        dot = dx[:-1] * dx[1:]
+        dot += dy[:-1] * dy[1:]
+        norm = sq[:-1] * sq[1:]
+        np.sqrt(norm, out=norm)
+        norm *= np.cos(np.radians(timing.corner_angle_deg))
+        np.less(dot, norm, out=sharp[1:-1])
+        del dot, norm
+        sharp[first] = False
+        sharp[last] = False
+    del dx, dy, sq
 
-    # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke.
-    boundary = np.zeros(P, dtype=bool)
+    # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
+    # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
+    boundary = sharp.copy()
     boundary[first] = True
     boundary[last] = True
-    boundary |= sharp
     bidx = np.flatnonzero(boundary)
     a, b = bidx[:-1], bidx[1:]
-    keep = (stroke_of_vertex[a] == stroke_of_vertex[b]) & (a != b)
+    keep = ~is_last[a]
     a, b = a[keep], b[keep]
-    piece_stroke = stroke_of_vertex[a]
+    piece_stroke = np.searchsorted(offs, a, side="right") - 1
     piece_len = s[b] - s[a]
-    piece_last = b == last[piece_stroke]
+    piece_last = is_last[b]
     # A closed stroke (ends on its start) has no free ends: its start point is lit once and
     # dwells again at the end only if the closure is a sharp corner (a rectangle's corner).
     is_dot = lengths == 0
-    closed = ~is_dot & np.all(pts[first] == pts[last], axis=1)
+    closed = ~is_dot & (px[first] == px[last]) & (py[first] == py[last])
     closed_sharp = np.zeros(S, dtype=bool)
     cs = np.flatnonzero(closed & (last - first >= 2))
     if cs.size:
@@ -287,11 +298,8 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     blk_base, blk_step, blk_move, blk_rep, blk_stroke = (
         blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o])
     blk_size = blk_move + blk_rep
-    lit_total = int(blk_size.sum())
-    k = np.arange(lit_total) - np.repeat(np.cumsum(blk_size) - blk_size, blk_size)
-    param = np.repeat(blk_base, blk_size) + np.repeat(blk_step, blk_size) * \
-        np.minimum(k + 1, np.repeat(blk_move, blk_size))
-    lit_x, lit_y = np.interp(param, s, px), np.interp(param, s, py)
+    blk_end = np.cumsum(blk_size)
+    lit_total = int(blk_end[-1])
 
     # Blanked blocks: jump samples then settle samples at the destination.
     blank_size = jumps + settles
@@ -304,17 +312,31 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     blank_y = np.repeat(jump_from[:, 1], blank_size) + \
         np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
 
-    # Interleave: stroke i's lit samples, then its jump to stroke i + 1 (both in order, so
-    # boolean masks place them).
+    # Stroke i's lit samples, then its jump to stroke i + 1 (both in order, so boolean masks
+    # place them).
     lit_count = np.bincount(blk_stroke, weights=blk_size, minlength=S).astype(np.int64)
     runs = np.column_stack([lit_count, blank_size]).ravel()
     n = lit_total + blank_total
     lit = np.repeat(np.tile(np.array([True, False]), S), runs)
-    x = np.empty(n)
-    y = np.empty(n)
-    x[lit], y[lit] = lit_x, lit_y
-    x[~lit], y[~lit] = blank_x, blank_y
-    points = np.column_stack([x, y])
+    dark = ~lit
+    points = np.empty((n, 2))
+    points[dark, 0] = blank_x
+    points[dark, 1] = blank_y
+    del dark
+
+    # The lit samples' positions along the global axis, then x and y by linear interpolation,
+    # each written into its column of `points` at once (full-length temporaries are dropped as
+    # soon as they are used, so they reuse each other's memory).
+    mult = np.arange(1, lit_total + 1)                      # k + 1 ...
+    mult -= np.repeat(blk_end - blk_size, blk_size)
+    np.minimum(mult, np.repeat(blk_move, blk_size), out=mult)   # ... held at n_move
+    param = np.repeat(blk_step, blk_size)
+    param *= mult
+    del mult
+    param += np.repeat(blk_base, blk_size)
+    points[lit, 0] = np.interp(param, s, px)
+    points[lit, 1] = np.interp(param, s, py)
+    del param, s, px, py
     stroke_idx = np.repeat(np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), runs)
     intensity = np.repeat(np.column_stack([strokes.intensity, np.zeros(S)]).ravel(), runs)
 

@@ -105,13 +105,20 @@ class DeflectionModel:
         return self.distort(u @ self.matrix.T + self.offset)
 
     def mm_to_drive(self, p: np.ndarray) -> np.ndarray:
-        q = self.undistort(p)
+        # (without distortion q = p is only read: no copy)
+        q = self.undistort(p) if self.has_distortion else np.asarray(p, dtype=float)
         # u = A^-1 (q - c), the 2 x 2 inverse applied elementwise (a LAPACK solve against a
-        # (2, n) right-hand side costs several times more per sample)
+        # (2, n) right-hand side costs several times more per sample), the products in two
+        # reused buffers
         inv = np.linalg.inv(self.matrix)
-        x = q[..., 0] - self.offset[0]
-        y = q[..., 1] - self.offset[1]
+        x, y, a, b = (np.empty(q.shape[:-1]) for _ in range(4))
+        np.subtract(q[..., 0], self.offset[0], out=x)
+        np.subtract(q[..., 1], self.offset[1], out=y)
         out = np.empty(q.shape)
-        out[..., 0] = inv[0, 0] * x + inv[0, 1] * y
-        out[..., 1] = inv[1, 0] * x + inv[1, 1] * y
+        np.multiply(inv[0, 0], x, out=a)
+        np.multiply(inv[0, 1], y, out=b)
+        np.add(a, b, out=out[..., 0])
+        np.multiply(inv[1, 0], x, out=a)
+        np.multiply(inv[1, 1], y, out=b)
+        np.add(a, b, out=out[..., 1])
         return out

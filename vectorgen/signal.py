@@ -18,6 +18,8 @@ FULL_SCALE_SLACK = 1e-9
 def correct(plan, model: DeflectionModel) -> np.ndarray:
     """Drive values (n, 2) that put the spot on the plan's points."""
     drive = model.mm_to_drive(plan.points)
+    if drive.size and -1.0 <= drive.min() and drive.max() <= 1.0:
+        return drive                # the usual case: all within full scale, nothing to clip
     over = np.abs(drive) > 1.0 + FULL_SCALE_SLACK
     if over.any():
         i = int(np.argmax(over.any(axis=1)))
@@ -42,12 +44,18 @@ def to_channels(drive: np.ndarray, plan, output, channels: int) -> tuple[np.ndar
     names = output.channel_order(channels)
     sig = np.empty((len(drive), len(names)), dtype=np.float32)
     for j, name in enumerate(names):
+        out = sig[:, j]                 # written in place: no full-length temporaries
         if name == "z":
-            z = np.where(plan.lit, plan.intensity, output.z_blank_level)
-            sig[:, j] = -z if output.z_polarity == "negative" else z
+            out[...] = plan.intensity
+            out[~plan.lit] = output.z_blank_level
+            if output.z_polarity == "negative":
+                np.negative(out, out=out)
         else:
             col = drive[:, 0 if name == "x" else 1]
-            sig[:, j] = -col if name in output.invert else col
+            if name in output.invert:
+                np.negative(col, out=out, casting="same_kind")
+            else:
+                out[...] = col
     return sig, names
 
 
