@@ -53,41 +53,112 @@ class Timing:
                    beam.corner_angle_deg)
 
 
-@dataclass
 class Plan:
-    points: np.ndarray          # (n, 2) spot position in mm at every sample
-    lit: np.ndarray             # (n,) bool: beam on
-    intensity: np.ndarray       # (n,) brightness 0..1 (0 where blanked)
-    stroke: np.ndarray          # (n,) index into `strokes` of each lit sample, -1 when blanked
-    strokes: Strokes            # the strokes in the order drawn
-    drawn_length_mm: float
-    moving_samples: int         # lit samples that advance along a stroke (no dwells)
-    blanked_moves: int
-    blanked_length_mm: float
-    corners: int
+    """Where the spot is at every sample of one frame, and whether it is lit.
+
+    The frame is a run of lit samples per stroke (in drawing order), each followed by the run
+    of blanked samples that jumps to the next stroke. `x`, `y` and `lit` are stored per sample;
+    `points`, `intensity`, `stroke` and the reordered `strokes` are made from them, the runs
+    and the drawing order when first asked for (the signal path needs none of them)."""
+
+    def __init__(self, x: np.ndarray, y: np.ndarray, lit: np.ndarray, runs: np.ndarray,
+                 strokes, stroke_intensity: np.ndarray, drawn_length_mm: float,
+                 moving_samples: int, blanked_moves: int, blanked_length_mm: float,
+                 corners: int):
+        self.x = x                  # (n,) spot position in mm at every sample ...
+        self.y = y                  # (n,) ... (x, y)
+        self.lit = lit              # (n,) bool: beam on
+        self.runs = runs            # (2 S,) samples lit on stroke i, then blanked, in turn
+        self.stroke_intensity = stroke_intensity    # (S,) of the strokes in the order drawn
+        self.drawn_length_mm = drawn_length_mm
+        self.moving_samples = moving_samples    # lit samples that advance along a stroke
+        self.blanked_moves = blanked_moves
+        self.blanked_length_mm = blanked_length_mm
+        self.corners = corners
+        self._cache: dict = {}
+        # the strokes in the order drawn, or a function that makes them
+        self._strokes = strokes
 
     @property
     def samples(self) -> int:
         return len(self.lit)
 
+    @property
+    def stroke_count(self) -> int:
+        return len(self.stroke_intensity)
+
+    @property
+    def strokes(self) -> Strokes:
+        """The strokes in the order drawn (reversed ones flipped)."""
+        if callable(self._strokes):
+            self._strokes = self._strokes()
+        return self._strokes
+
+    @property
+    def points(self) -> np.ndarray:
+        """(n, 2) spot position in mm at every sample."""
+        if "points" not in self._cache:
+            self._cache["points"] = np.column_stack([self.x, self.y])
+        return self._cache["points"]
+
+    @property
+    def intensity(self) -> np.ndarray:
+        """(n,) brightness 0..1 (0 where blanked)."""
+        if "intensity" not in self._cache:
+            S = self.stroke_count
+            self._cache["intensity"] = np.repeat(
+                np.column_stack([self.stroke_intensity, np.zeros(S)]).ravel(), self.runs)
+        return self._cache["intensity"]
+
+    @property
+    def stroke(self) -> np.ndarray:
+        """(n,) index into `strokes` of each lit sample, -1 when blanked."""
+        if "stroke" not in self._cache:
+            S = self.stroke_count
+            self._cache["stroke"] = np.repeat(
+                np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), self.runs)
+        return self._cache["stroke"]
+
 
 def order_strokes(strokes: Strokes) -> Strokes:
     """Greedy nearest-neighbour order from the first stroke; open strokes may be reversed."""
-    S = strokes.count
-    if S <= 2:
+    if strokes.count <= 2:
         return strokes
-    order, flip = _greedy_order(strokes)
-    # Rebuild the packed arrays in the new order, reversed strokes flipped: one slice (a view)
-    # per stroke and one copy, rather than per-vertex index arrays.
+    return _reordered(strokes, *_greedy_order(strokes))
+
+
+def _reordered(strokes: Strokes, order: np.ndarray, flip: np.ndarray) -> Strokes:
+    """The packed arrays in the new order, reversed strokes flipped: one slice (a view) per
+    stroke and one copy, rather than per-vertex index arrays."""
     pts, offs = strokes.points, strokes.offsets.tolist()
     parts = []
     for i, f in zip(order.tolist(), flip.tolist()):
         part = pts[offs[i]:offs[i + 1]]
         parts.append(part[::-1] if f else part)
+    return Strokes(np.concatenate(parts), _reordered_offsets(strokes, order),
+                   strokes.intensity[order], [strokes.labels[i] for i in order])
+
+
+def _reordered_offsets(strokes: Strokes, order: np.ndarray) -> np.ndarray:
     counts = np.diff(strokes.offsets)[order]
-    new_offs = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-    return Strokes(np.concatenate(parts), new_offs, strokes.intensity[order],
-                   [strokes.labels[i] for i in order])
+    return np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+
+
+def _reordered_xy(strokes: Strokes, order: np.ndarray, flip: np.ndarray):
+    """x and y of _reordered(...).points as two contiguous arrays, made straight from the
+    strokes' columns."""
+    x0, y0 = strokes.points[:, 0], strokes.points[:, 1]
+    offs = strokes.offsets.tolist()
+    xs, ys = [], []
+    for i, f in zip(order.tolist(), flip.tolist()):
+        a, b = offs[i], offs[i + 1]
+        if f:
+            xs.append(x0[a:b][::-1])
+            ys.append(y0[a:b][::-1])
+        else:
+            xs.append(x0[a:b])
+            ys.append(y0[a:b])
+    return np.concatenate(xs), np.concatenate(ys)
 
 
 def _greedy_order(strokes: Strokes) -> tuple[np.ndarray, np.ndarray]:
@@ -185,27 +256,39 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     """The beam plan for one frame of `strokes` (mm, already clipped to the screen)."""
     if strokes.count == 0:
         raise VectorgenError("nothing to draw: the drawing is empty (or wholly off the screen)")
-    if reorder:
-        strokes = order_strokes(strokes)
-    pts, offs = strokes.points, strokes.offsets
-    S, P = strokes.count, len(pts)
+    S = strokes.count
+    if reorder and S > 2:
+        order, flip = _greedy_order(strokes)
+        # x, y (contiguous: whole-array arithmetic on them is several times faster than on
+        # the columns of an (P, 2) array) in the new order; the reordered Strokes themselves
+        # are made only if asked for
+        px, py = _reordered_xy(strokes, order, flip)
+        offs = _reordered_offsets(strokes, order)
+        stroke_intensity = strokes.intensity[order]
+        source = strokes
+
+        def drawn():
+            return _reordered(source, order, flip)
+    else:
+        px = np.ascontiguousarray(strokes.points[:, 0])
+        py = np.ascontiguousarray(strokes.points[:, 1])
+        offs, stroke_intensity, drawn = strokes.offsets, strokes.intensity, strokes
+    P = len(px)
     first, last = offs[:-1], offs[1:] - 1
 
-    # Global arc-length axis: strokes laid end to end with a gap between them.
-    # (x and y as contiguous 1-D arrays: whole-array arithmetic on them is several times
-    # faster than on the columns of an (P, 2) array or with fancy indexing; in-place where a
-    # temporary would only be thrown away)
-    px, py = np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1])
+    # Global arc-length axis: strokes laid end to end with a gap between them. The buffers are
+    # reused as soon as a value is no longer needed: each new full-length array costs more
+    # than the arithmetic on it.
     dx, dy = np.diff(px), np.diff(py)
     sq = dx * dx                        # squared segment lengths dx dx + dy dy
-    sq += dy * dy
-    seg = np.sqrt(sq)
+    t = dy * dy
+    sq += t
+    np.sqrt(sq, out=t)                  # segment lengths
     if P > 1:
-        seg[last[:-1]] = GAP
+        t[last[:-1]] = GAP
     s = np.empty(P)
     s[0] = 0.0
-    np.cumsum(seg, out=s[1:])
-    del seg
+    np.cumsum(t, out=s[1:])
     lengths = s[last] - s[first]
     is_last = np.zeros(P, dtype=bool)
     is_last[last] = True
@@ -214,16 +297,17 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     sharp = np.zeros(P, dtype=bool)
     if P > 2:
         # turn > corner angle  <=>  cos(turn) = d_in . d_out / (|d_in| |d_out|) < cos(angle)
-        dot = dx[:-1] * dx[1:]
-        dot += dy[:-1] * dy[1:]
-        norm = sq[:-1] * sq[1:]
+        dot, norm = t[:-1], dy[:-1]
+        np.multiply(dx[:-1], dx[1:], out=dot)
+        np.multiply(dy[:-1], dy[1:], out=dx[:-1])
+        dot += dx[:-1]                  # dx dx' + dy dy'
+        np.multiply(sq[:-1], sq[1:], out=norm)
         np.sqrt(norm, out=norm)
         norm *= np.cos(np.radians(timing.corner_angle_deg))
         np.less(dot, norm, out=sharp[1:-1])
-        del dot, norm
         sharp[first] = False
         sharp[last] = False
-    del dx, dy, sq
+    del dx, dy, sq, t
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
     # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
@@ -244,16 +328,18 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     closed_sharp = np.zeros(S, dtype=bool)
     cs = np.flatnonzero(closed & (last - first >= 2))
     if cs.size:
-        closed_sharp[cs] = _turn_deg(pts[last[cs]] - pts[last[cs] - 1],
-                                     pts[first[cs] + 1] - pts[first[cs]]) > timing.corner_angle_deg
+        def at(i):
+            return np.column_stack([px[i], py[i]])
+        closed_sharp[cs] = _turn_deg(at(last[cs]) - at(last[cs] - 1),
+                                     at(first[cs] + 1) - at(first[cs])) > timing.corner_angle_deg
     end_rep = np.where(closed, np.where(closed_sharp, timing.corner_dwell, 0), timing.end_dwell)
     piece_rep = np.where(piece_last, end_rep[piece_stroke], timing.corner_dwell)
     start_rep = np.where(is_dot, timing.dot_dwell, np.where(closed, 1, timing.end_dwell))
 
     # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).
     nxt = np.roll(np.arange(S), -1)
-    jump_from = pts[last]
-    jump_to = pts[first[nxt]]
+    jump_from = np.column_stack([px[last], py[last]])
+    jump_to = np.column_stack([px[first[nxt]], py[first[nxt]]])
     jump_len = np.hypot(*(jump_to - jump_from).T)
     jumps = np.where(jump_len > 0, np.maximum(1, np.ceil(jump_len / timing.jump_step_mm)), 0)
     jumps = jumps.astype(np.int64)
@@ -286,61 +372,55 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
         raise VectorgenError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f} s):"
                              f" raise the writing speed or draw less")
 
-    # Lit blocks in drawing order: a start block per stroke, then its pieces.
-    # Block: param = base + step * min(k + 1, n_move) for k in 0 .. n_move + n_rep - 1.
-    blk_key = np.concatenate([2 * first, 2 * a + 1])
-    blk_base = np.concatenate([s[first], s[a]])
-    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1)])
-    blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n])
-    blk_rep = np.concatenate([start_rep, piece_rep]).astype(np.int64)
-    blk_stroke = np.concatenate([np.arange(S), piece_stroke])
+    # Blocks in drawing order: per stroke a start block, its pieces, then its blanked jump.
+    # Block: param = base + step * min(k + 1, n_move) for k in 0 .. n_move + n_rep - 1 (so a
+    # piece moves n_move samples, then dwells n_rep on its end; a start block dwells).
+    # A jump block sits at its stroke's end; its samples are set afterwards (a straight line).
+    blank_size = jumps + settles
+    blk_key = np.concatenate([2 * first, 2 * a + 1, 2 * last + 1])
+    blk_base = np.concatenate([s[first], s[a], s[last]])
+    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1), np.zeros(S)])
+    blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n, np.zeros(S, dtype=np.int64)])
+    blk_rep = np.concatenate([start_rep, piece_rep, blank_size]).astype(np.int64)
+    blk_stroke = np.concatenate([np.arange(S), piece_stroke, np.arange(S)])
+    blk_lit = np.concatenate([np.ones(S + len(a), dtype=bool), np.zeros(S, dtype=bool)])
     o = np.argsort(blk_key, kind="stable")
-    blk_base, blk_step, blk_move, blk_rep, blk_stroke = (
-        blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o])
+    blk_base, blk_step, blk_move, blk_rep, blk_stroke, blk_lit = (
+        blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o], blk_lit[o])
     blk_size = blk_move + blk_rep
     blk_end = np.cumsum(blk_size)
-    lit_total = int(blk_end[-1])
-
-    # Blanked blocks: jump samples then settle samples at the destination.
-    blank_size = jumps + settles
-    blank_total = int(blank_size.sum())
-    kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
-    frac = np.minimum(kb + 1, np.repeat(jumps, blank_size)) / \
-        np.repeat(np.maximum(jumps, 1), blank_size)
-    blank_x = np.repeat(jump_from[:, 0], blank_size) + \
-        np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
-    blank_y = np.repeat(jump_from[:, 1], blank_size) + \
-        np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
-
-    # Stroke i's lit samples, then its jump to stroke i + 1 (both in order, so boolean masks
-    # place them).
-    lit_count = np.bincount(blk_stroke, weights=blk_size, minlength=S).astype(np.int64)
+    n = int(blk_end[-1])
+    lit_count = np.bincount(blk_stroke[blk_lit], weights=blk_size[blk_lit],
+                            minlength=S).astype(np.int64)
     runs = np.column_stack([lit_count, blank_size]).ravel()
-    n = lit_total + blank_total
     lit = np.repeat(np.tile(np.array([True, False]), S), runs)
-    dark = ~lit
-    points = np.empty((n, 2))
-    points[dark, 0] = blank_x
-    points[dark, 1] = blank_y
-    del dark
 
-    # The lit samples' positions along the global axis, then x and y by linear interpolation,
-    # each written into its column of `points` at once (full-length temporaries are dropped as
-    # soon as they are used, so they reuse each other's memory).
-    mult = np.arange(1, lit_total + 1)                      # k + 1 ...
+    # Every sample's position along the global axis, then x and y by linear interpolation
+    # (the jump samples get their stroke's end here and their line below).
+    mult = np.arange(1, n + 1)                              # k + 1 ...
     mult -= np.repeat(blk_end - blk_size, blk_size)
     np.minimum(mult, np.repeat(blk_move, blk_size), out=mult)   # ... held at n_move
     param = np.repeat(blk_step, blk_size)
     param *= mult
     del mult
     param += np.repeat(blk_base, blk_size)
-    points[lit, 0] = np.interp(param, s, px)
-    points[lit, 1] = np.interp(param, s, py)
-    del param, s, px, py
-    stroke_idx = np.repeat(np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), runs)
-    intensity = np.repeat(np.column_stack([strokes.intensity, np.zeros(S)]).ravel(), runs)
+    x = np.interp(param, s, px)
+    y = np.interp(param, s, py)
+    del param
 
-    return Plan(points, lit, intensity, stroke_idx, strokes,
+    # Blanked samples: jump samples then settle samples at the destination.
+    blank_total = int(blank_size.sum())
+    if blank_total:
+        kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
+        frac = np.minimum(kb + 1, np.repeat(jumps, blank_size)) / \
+            np.repeat(np.maximum(jumps, 1), blank_size)
+        at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
+        x[at] = np.repeat(jump_from[:, 0], blank_size) + \
+            np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
+        y[at] = np.repeat(jump_from[:, 1], blank_size) + \
+            np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
+
+    return Plan(x, y, lit, runs, drawn, stroke_intensity,
                 drawn_length_mm=float(lengths.sum()),
                 moving_samples=int(piece_n.sum()),
                 blanked_moves=int((jumps > 0).sum()),

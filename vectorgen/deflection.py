@@ -56,17 +56,22 @@ class DeflectionModel:
         p = np.asarray(p, dtype=float)
         if not self.has_distortion:
             return p.copy()
+        x, y = self._undistort_xy(p[..., 0], p[..., 1], tol_mm, max_iter)
+        return np.stack([x, y], axis=-1)
+
+    def _undistort_xy(self, px: np.ndarray, py: np.ndarray, tol_mm: float = 1e-9,
+                      max_iter: int = 50) -> tuple[np.ndarray, np.ndarray]:
+        """undistort on x and y given apart (arrays of one shape); returns (x, y)."""
         R2 = self.norm_radius ** 2
         kr, kx, ky = self.k_radial, self.k_x, self.k_y
         # First guess: divide by the local scale factor evaluated at p.
-        q = p.copy()
-        x, y = q[..., 0], q[..., 1]
+        x, y = px, py
         for _ in range(max_iter):
             x2, y2 = x * x / R2, y * y / R2
             fx = 1.0 + kr * (x2 + y2) + kx * y2
             fy = 1.0 + kr * (x2 + y2) + ky * x2
-            rx = x * fx - p[..., 0]
-            ry = y * fy - p[..., 1]
+            rx = x * fx - px
+            ry = y * fy - py
             # Jacobian of (x fx, y fy)
             j11 = fx + x * (2.0 * kr * x / R2)
             j12 = x * (2.0 * (kr + kx) * y / R2)
@@ -79,9 +84,13 @@ class DeflectionModel:
             y = y - dy
             if np.all(np.abs(dx) + np.abs(dy) < tol_mm):
                 break
-        out = np.stack([x, y], axis=-1)
-        if not np.all(np.isfinite(out)) or \
-                np.abs(self.distort(out) - p).max(initial=0.0) > INVERSE_TOL_MM:
+        x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+        # the result must land back on p (distort() written out on x and y)
+        xh, yh = x / self.norm_radius, y / self.norm_radius
+        r2 = xh * xh + yh * yh
+        err = np.max([np.abs(x * (1.0 + kr * r2 + kx * yh * yh) - px).max(initial=0.0),
+                      np.abs(y * (1.0 + kr * r2 + ky * xh * xh) - py).max(initial=0.0)])
+        if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))) or err > INVERSE_TOL_MM:
             raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
                                  "drawing (check k_radial, k_x, k_y)")
         # Only the branch joined to the tube axis is physical: there both scale factors and the
@@ -93,11 +102,12 @@ class DeflectionModel:
         det = (fx + 2.0 * kr * x2) * (fy + 2.0 * kr * y2) - 4.0 * (kr + kx) * (kr + ky) * x2 * y2
         folded = (fx <= 0) | (fy <= 0) | (det <= 0)
         if np.any(folded):
-            where = p.reshape(-1, 2)[int(np.argmax(folded.ravel()))]
+            i = int(np.argmax(np.ravel(folded)))
+            where = (np.ravel(px)[i], np.ravel(py)[i])
             raise VectorgenError("the profile's pincushion terms fold the picture: no position "
                                  f"near the axis lands at ({where[0]:.2f}, {where[1]:.2f}) mm "
                                  "(check k_radial, k_x, k_y)")
-        return out
+        return x, y
 
     # -- full model ------------------------------------------------------------------------------
     def drive_to_mm(self, u: np.ndarray) -> np.ndarray:
@@ -105,20 +115,27 @@ class DeflectionModel:
         return self.distort(u @ self.matrix.T + self.offset)
 
     def mm_to_drive(self, p: np.ndarray) -> np.ndarray:
-        # (without distortion q = p is only read: no copy)
-        q = self.undistort(p) if self.has_distortion else np.asarray(p, dtype=float)
+        p = np.asarray(p, dtype=float)
+        return self.drive_from_xy(p[..., 0], p[..., 1])
+
+    def drive_from_xy(self, px: np.ndarray, py: np.ndarray) -> np.ndarray:
+        """mm_to_drive of the points (px, py) given as two arrays of one shape: (..., 2)."""
+        if self.has_distortion:
+            px, py = self._undistort_xy(px, py)
         # u = A^-1 (q - c), the 2 x 2 inverse applied elementwise (a LAPACK solve against a
-        # (2, n) right-hand side costs several times more per sample), the products in two
-        # reused buffers
+        # (2, n) right-hand side costs several times more per sample), each product written
+        # into the output or into a reused buffer
         inv = np.linalg.inv(self.matrix)
-        x, y, a, b = (np.empty(q.shape[:-1]) for _ in range(4))
-        np.subtract(q[..., 0], self.offset[0], out=x)
-        np.subtract(q[..., 1], self.offset[1], out=y)
-        out = np.empty(q.shape)
-        np.multiply(inv[0, 0], x, out=a)
-        np.multiply(inv[0, 1], y, out=b)
-        np.add(a, b, out=out[..., 0])
-        np.multiply(inv[1, 0], x, out=a)
-        np.multiply(inv[1, 1], y, out=b)
-        np.add(a, b, out=out[..., 1])
+        shape = np.shape(px)
+        x, y = np.empty(shape), np.empty(shape)
+        np.subtract(px, self.offset[0], out=x)
+        np.subtract(py, self.offset[1], out=y)
+        out = np.empty(shape + (2,))
+        u, v = out[..., 0], out[..., 1]
+        np.multiply(inv[0, 0], x, out=u)
+        np.multiply(inv[1, 0], x, out=v)
+        np.multiply(inv[0, 1], y, out=x)
+        np.add(u, x, out=u)             # inv00 x + inv01 y
+        np.multiply(inv[1, 1], y, out=x)
+        np.add(v, x, out=v)             # inv10 x + inv11 y
         return out

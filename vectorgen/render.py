@@ -82,7 +82,7 @@ class Frame:
             "blanked_length_mm": round(p.blanked_length_mm, 6),
             "writing_speed_mm_per_s": round(speed, 6),
             "point_spacing_mm": round(speed / self.rate, 6),
-            "strokes": p.strokes.count,
+            "strokes": p.stroke_count,
             "corners": p.corners,
             "lit_samples": int(p.lit.sum()),
             "blanked_samples": int((~p.lit).sum()),

@@ -17,7 +17,7 @@ FULL_SCALE_SLACK = 1e-9
 
 def correct(plan, model: DeflectionModel) -> np.ndarray:
     """Drive values (n, 2) that put the spot on the plan's points."""
-    drive = model.mm_to_drive(plan.points)
+    drive = model.drive_from_xy(plan.x, plan.y)
     if drive.size and -1.0 <= drive.min() and drive.max() <= 1.0:
         return drive                # the usual case: all within full scale, nothing to clip
     over = np.abs(drive) > 1.0 + FULL_SCALE_SLACK
@@ -46,10 +46,16 @@ def to_channels(drive: np.ndarray, plan, output, channels: int) -> tuple[np.ndar
     for j, name in enumerate(names):
         out = sig[:, j]                 # written in place: no full-length temporaries
         if name == "z":
-            out[...] = plan.intensity
-            out[~plan.lit] = output.z_blank_level
-            if output.z_polarity == "negative":
-                np.negative(out, out=out)
+            runs = getattr(plan, "runs", None)
+            if runs is not None:        # a beam plan: one level per lit or blanked run
+                S = len(runs) // 2
+                z = np.column_stack([plan.stroke_intensity,
+                                     np.full(S, output.z_blank_level, dtype=float)]).ravel()
+                z = -z if output.z_polarity == "negative" else z
+                out[...] = np.repeat(z.astype(np.float32), runs)
+            else:
+                z = np.where(plan.lit, plan.intensity, output.z_blank_level)
+                out[...] = -z if output.z_polarity == "negative" else z
         else:
             col = drive[:, 0 if name == "x" else 1]
             if name in output.invert:
