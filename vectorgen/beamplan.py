@@ -26,6 +26,7 @@ from .errors import VectorgenError
 from .strokes import Strokes
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
+SAMPLE_CHUNK = 1 << 14        # samples per chunk when laying out a frame
 GAP = 1.0  # arc-length gap between strokes on the global axis (any positive number works)
 
 
@@ -396,17 +397,22 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     lit = np.repeat(np.tile(np.array([True, False]), S), runs)
 
     # Every sample's position along the global axis, then x and y by linear interpolation
-    # (the jump samples get their stroke's end here and their line below).
-    mult = np.arange(1, n + 1)                              # k + 1 ...
-    mult -= np.repeat(blk_end - blk_size, blk_size)
-    np.minimum(mult, np.repeat(blk_move, blk_size), out=mult)   # ... held at n_move
-    param = np.repeat(blk_step, blk_size)
-    param *= mult
-    del mult
-    param += np.repeat(blk_base, blk_size)
-    x = np.interp(param, s, px)
-    y = np.interp(param, s, py)
-    del param
+    # (the jump samples get their stroke's end here and their line below). Done in chunks of
+    # samples, so that the only full-length arrays are the block index and the results: the
+    # chunks' temporaries stay in cache, and a frame needs that much less fresh memory.
+    blk = np.repeat(np.arange(len(blk_size), dtype=np.int32), blk_size)
+    blk_start = blk_end - blk_size
+    x, y = np.empty(n), np.empty(n)
+    for c0 in range(0, n, SAMPLE_CHUNK):
+        c1 = min(n, c0 + SAMPLE_CHUNK)
+        b = blk[c0:c1]
+        mult = np.arange(c0 + 1, c1 + 1) - blk_start[b]        # k + 1 ...
+        np.minimum(mult, blk_move[b], out=mult)                 # ... held at n_move
+        param = blk_step[b] * mult
+        param += blk_base[b]
+        x[c0:c1] = np.interp(param, s, px)
+        y[c0:c1] = np.interp(param, s, py)
+    del blk
 
     # Blanked samples: jump samples then settle samples at the destination.
     blank_total = int(blank_size.sum())

@@ -6,7 +6,7 @@ file output, live output and scenes all call the same `Renderer.frame(strokes)`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -14,7 +14,7 @@ from .beamplan import Plan, Timing, plan_frame
 from .deflection import DeflectionModel
 from .errors import VectorgenError
 from .geometry import clip_to_screen
-from .signal import correct, to_channels
+from .signal import correct, plan_channels
 from .strokes import Strokes, check_finite
 
 MAX_RATE = 10_000_000
@@ -49,15 +49,28 @@ class Settings:
             raise VectorgenError(f"samples per frame must be >= 1 (got {self.frame_samples})")
 
 
-@dataclass
 class Frame:
-    signal: np.ndarray          # (n, channels) float32, full scale +-1
-    names: list                 # signal on each channel, e.g. ["x", "y", "z"]
-    plan: Plan
-    drive: np.ndarray           # (n, 2) drive before channel mapping
-    rate: int
-    clipped_strokes: int = 0
-    notes: list = field(default_factory=list)
+    """One rendered frame: the channel signal and how it was made. `drive` (the corrected
+    (n, 2) drive before channel mapping) may be given as a function that makes it: the render
+    path writes the signal without keeping it, and it is worked out again when asked for."""
+
+    def __init__(self, signal: np.ndarray, names: list, plan: Plan, drive, rate: int,
+                 clipped_strokes: int = 0, notes: list | None = None,
+                 peak_drive: float | None = None):
+        self.signal = signal        # (n, channels) float32, full scale +-1
+        self.names = names          # signal on each channel, e.g. ["x", "y", "z"]
+        self.plan = plan
+        self._drive = drive
+        self.rate = rate
+        self.clipped_strokes = clipped_strokes
+        self.notes = [] if notes is None else notes
+        self._peak = peak_drive     # max |drive|, when known without the drive
+
+    @property
+    def drive(self) -> np.ndarray:
+        if callable(self._drive):
+            self._drive = self._drive()
+        return self._drive
 
     @property
     def samples(self) -> int:
@@ -71,7 +84,10 @@ class Frame:
         p = self.plan
         lit_time = p.moving_samples / self.rate
         speed = p.drawn_length_mm / lit_time if lit_time > 0 else 0.0
-        peak = float(np.abs(self.drive).max()) if self.samples else 0.0
+        if self._peak is not None:
+            peak = self._peak
+        else:
+            peak = float(np.abs(self.drive).max()) if self.samples else 0.0
         rep = {
             "sample_rate": self.rate,
             "samples_per_frame": self.samples,
@@ -129,9 +145,11 @@ class Renderer:
             raise VectorgenError("nothing to draw: the drawing lies wholly outside the usable "
                                  "area of the screen")
         plan = plan_frame(clipped, self.timing, self.target, self.settings.reorder)
-        drive = correct(plan, self.model)
-        signal, names = to_channels(drive, plan, self.profile.output, self.channels)
-        frame = Frame(signal, names, plan, drive, self.rate, n_clipped)
+        del clipped
+        signal, names, peak = plan_channels(plan, self.model, self.profile.output, self.channels)
+        model = self.model
+        frame = Frame(signal, names, plan, lambda: correct(plan, model), self.rate, n_clipped,
+                      peak_drive=peak)
         if n_clipped:
             frame.notes.append(f"{n_clipped} stroke(s) cut at the edge of the usable area")
         if frame.refresh_hz < self.profile.beam.flicker_hz:

@@ -39,6 +39,62 @@ def correct(plan, model: DeflectionModel) -> np.ndarray:
     return np.clip(drive, -1.0, 1.0)   # removes only the FULL_SCALE_SLACK rounding
 
 
+CHUNK = 1 << 14        # samples corrected at a time by plan_channels
+
+
+def plan_channels(plan, model: DeflectionModel, output, channels: int):
+    """correct() then to_channels() for a whole beam plan: (signal, names, peak |drive|).
+
+    Without pincushion terms the correction is the same arithmetic sample by sample, so it
+    runs in chunks that stay in cache, straight into the signal, and the full (n, 2) drive is
+    never made. With them (Newton's iterations run on the whole frame at once), or when a
+    chunk comes out beyond full scale (to be refused, or clipped within the slack), the frame
+    goes through correct() and to_channels() as a whole."""
+    if model.has_distortion:
+        return _whole_frame(plan, model, output, channels)
+    names = output.channel_order(channels)
+    n = plan.samples
+    sig = np.empty((n, len(names)), dtype=np.float32)
+    cols = [(j, 0 if name == "x" else 1, name in output.invert)
+            for j, name in enumerate(names) if name != "z"]
+    lo, hi = np.inf, -np.inf
+    for c0 in range(0, n, CHUNK):
+        c1 = min(n, c0 + CHUNK)
+        d = model.drive_from_xy(plan.x[c0:c1], plan.y[c0:c1])
+        dlo, dhi = d.min(), d.max()
+        if not (-1.0 <= dlo and dhi <= 1.0):
+            return _whole_frame(plan, model, output, channels)
+        lo, hi = min(lo, dlo), max(hi, dhi)
+        for j, k, inv in cols:
+            if inv:
+                np.negative(d[:, k], out=sig[c0:c1, j], casting="same_kind")
+            else:
+                sig[c0:c1, j] = d[:, k]
+    for j, name in enumerate(names):
+        if name == "z":
+            _z_channel(sig[:, j], plan, output)
+    return sig, names, (float(max(abs(lo), abs(hi))) if n else 0.0)
+
+
+def _whole_frame(plan, model, output, channels):
+    drive = correct(plan, model)
+    sig, names = to_channels(drive, plan, output, channels)
+    return sig, names, (float(np.abs(drive).max()) if len(drive) else 0.0)
+
+
+def _z_channel(out: np.ndarray, plan, output) -> None:
+    runs = getattr(plan, "runs", None)
+    if runs is not None:        # a beam plan: one level per lit or blanked run
+        S = len(runs) // 2
+        z = np.column_stack([plan.stroke_intensity,
+                             np.full(S, output.z_blank_level, dtype=float)]).ravel()
+        z = -z if output.z_polarity == "negative" else z
+        out[...] = np.repeat(z.astype(np.float32), runs)
+    else:
+        z = np.where(plan.lit, plan.intensity, output.z_blank_level)
+        out[...] = -z if output.z_polarity == "negative" else z
+
+
 def to_channels(drive: np.ndarray, plan, output, channels: int) -> tuple[np.ndarray, list[str]]:
     """(n, channels) float32 in the profile's channel order and polarity, and their names."""
     names = output.channel_order(channels)
@@ -46,16 +102,7 @@ def to_channels(drive: np.ndarray, plan, output, channels: int) -> tuple[np.ndar
     for j, name in enumerate(names):
         out = sig[:, j]                 # written in place: no full-length temporaries
         if name == "z":
-            runs = getattr(plan, "runs", None)
-            if runs is not None:        # a beam plan: one level per lit or blanked run
-                S = len(runs) // 2
-                z = np.column_stack([plan.stroke_intensity,
-                                     np.full(S, output.z_blank_level, dtype=float)]).ravel()
-                z = -z if output.z_polarity == "negative" else z
-                out[...] = np.repeat(z.astype(np.float32), runs)
-            else:
-                z = np.where(plan.lit, plan.intensity, output.z_blank_level)
-                out[...] = -z if output.z_polarity == "negative" else z
+            _z_channel(out, plan, output)
         else:
             col = drive[:, 0 if name == "x" else 1]
             if name in output.invert:
