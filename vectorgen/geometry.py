@@ -97,37 +97,85 @@ def flatten_runs(runs, tol: float) -> tuple[np.ndarray, np.ndarray]:
     in the whole drawing goes through one vectorised call. Returns the points (P, 2) of all runs
     packed end to end and the run offsets (R + 1,): run r is points[offsets[r]:offsets[r + 1]],
     its first point the run's start."""
+    return flatten_table(segment_table(runs), tol)
+
+
+class SegmentTable:
+    """The segments of many continuous runs, read out of the svgpathtools objects in one pass:
+    per kind (1 line, 2 quadratic, 3 cubic, 4 arc) an array with a row per segment, in drawing
+    order. Lines and Beziers: their control points (complex); arcs: centre, radii, rotation,
+    start angle and sweep (radians) and end point. `arcs` keeps the arc segments themselves."""
+
+    def __init__(self, run_len, kinds, data, starts, arcs):
+        self.run_len = run_len      # (R,) segments per run
+        self.kinds = kinds          # (m,) int8 kind of every segment
+        self.data = data            # {kind: array}
+        self.starts = starts        # (R,) complex start point of every run
+        self.arcs = arcs            # the Arc segments, in order
+
+    @property
+    def segments(self) -> int:
+        return len(self.kinds)
+
+    def control_points(self) -> np.ndarray:
+        """End and control points of the lines and Beziers (complex, flat)."""
+        parts = [self.data[k].ravel() for k in (1, 2, 3) if k in self.data]
+        return np.concatenate(parts) if parts else np.zeros(0, dtype=complex)
+
+
+def segment_table(runs) -> SegmentTable:
+    """One pass over the segments of `runs` (lists of svgpathtools segments, none empty)."""
     from svgpathtools import Arc, CubicBezier, Line, QuadraticBezier
 
+    kind_of = {Line: 1, QuadraticBezier: 2, CubicBezier: 3, Arc: 4}
     run_len = np.array([len(r) for r in runs], dtype=np.int64)
     if (run_len == 0).any():
         raise ValueError("flatten_runs: empty run")
-    segs = [seg for r in runs for seg in r]
-    m = len(segs)
-    kinds = np.empty(m, dtype=np.int8)
-    data = {1: [], 2: [], 3: [], 4: []}
-    for j, seg in enumerate(segs):
-        if isinstance(seg, Line):
-            kinds[j] = 1
-            data[1].append((seg.start, seg.end))
-        elif isinstance(seg, QuadraticBezier):
-            kinds[j] = 2
-            data[2].append((seg.start, seg.control, seg.end))
-        elif isinstance(seg, CubicBezier):
-            kinds[j] = 3
-            data[3].append((seg.start, seg.control1, seg.control2, seg.end))
-        elif isinstance(seg, Arc):
-            kinds[j] = 4
-            data[4].append((seg.center, seg.radius.real, seg.radius.imag, np.radians(seg.rotation),
-                            np.radians(seg.theta), np.radians(seg.delta), seg.end))
-        else:  # pragma: no cover - svgpathtools has no other kinds
-            raise VectorgenError(f"unsupported path segment {type(seg).__name__}")
+    kinds = []
+    rows = {1: [], 2: [], 3: [], 4: []}
+    arcs = []
+    for r in runs:
+        for seg in r:
+            kind = kind_of.get(type(seg))
+            if kind is None:
+                for cls, k in kind_of.items():
+                    if isinstance(seg, cls):
+                        kind = k
+                        break
+                else:  # pragma: no cover - svgpathtools has no other kinds
+                    raise VectorgenError(f"unsupported path segment {type(seg).__name__}")
+            kinds.append(kind)
+            if kind == 1:
+                rows[1].append((seg.start, seg.end))
+            elif kind == 2:
+                rows[2].append((seg.start, seg.control, seg.end))
+            elif kind == 3:
+                rows[3].append((seg.start, seg.control1, seg.control2, seg.end))
+            else:
+                arcs.append(seg)
+                rows[4].append((seg.center, seg.radius, seg.rotation, seg.theta, seg.delta,
+                                seg.end))
+    data = {k: np.array(v, dtype=complex) for k, v in rows.items() if v}
+    if 4 in data:
+        # (degrees to radians on whole columns: the same single product per element)
+        a = data[4]
+        data[4] = np.column_stack([a[:, 0], a[:, 1].real, a[:, 1].imag,
+                                   np.radians(a[:, 2].real), np.radians(a[:, 3].real),
+                                   np.radians(a[:, 4].real), a[:, 5]])
+    starts = np.array([r[0].start for r in runs], dtype=complex)
+    return SegmentTable(run_len, np.array(kinds, dtype=np.int8), data, starts, arcs)
+
+
+def flatten_table(table: SegmentTable, tol: float) -> tuple[np.ndarray, np.ndarray]:
+    """flatten_runs on a segment table (which can be flattened again at another tolerance)."""
+    kinds, run_len = table.kinds, table.run_len
+    m = len(kinds)
     flat = {}
     for kind in (1, 2, 3):
-        if data[kind]:
-            flat[kind] = flatten_beziers(np.array(data[kind], dtype=complex), tol)
-    if data[4]:
-        a = np.array(data[4], dtype=complex)
+        if kind in table.data:
+            flat[kind] = flatten_beziers(table.data[kind], tol)
+    if 4 in table.data:
+        a = table.data[4]
         pts, n = flatten_arcs(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
                               a[:, 5].real, tol)
         pts[np.cumsum(n) - 1] = a[:, 6]      # land exactly on each arc's end point
@@ -137,14 +185,14 @@ def flatten_runs(runs, tol: float) -> tuple[np.ndarray, np.ndarray]:
     n_seg = np.zeros(m, dtype=np.int64)
     for kind, (_pts, n) in flat.items():
         n_seg[kinds == kind] = n
-    seg_run = np.repeat(np.arange(len(runs)), run_len)
+    seg_run = np.repeat(np.arange(len(run_len)), run_len)
     run_first = np.cumsum(run_len) - run_len
     offsets = np.concatenate([[0], np.cumsum(1 + np.bincount(seg_run, weights=n_seg,
-                                                             minlength=len(runs)))]).astype(np.int64)
+                                                             minlength=len(run_len)))]).astype(np.int64)
     before = np.cumsum(n_seg) - n_seg                  # points of earlier segments, all runs
     seg_dest = offsets[seg_run] + 1 + before - before[run_first][seg_run]
     z = np.empty(offsets[-1], dtype=complex)
-    z[offsets[:-1]] = [segs[j].start for j in run_first]
+    z[offsets[:-1]] = table.starts
     for kind, (pts, n) in flat.items():
         dest = np.repeat(seg_dest[kinds == kind], n)
         z[dest + np.arange(len(pts)) - np.repeat(np.cumsum(n) - n, n)] = pts

@@ -22,7 +22,7 @@ import warnings
 import numpy as np
 
 from .errors import VectorgenError
-from .geometry import fit_transform, flatten_runs
+from .geometry import fit_transform, flatten_table, segment_table
 from .strokes import Strokes, check_finite, clean
 
 SVG_NS = "http://www.w3.org/2000/svg"
@@ -146,27 +146,36 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         raise VectorgenError(f"{path}: cannot read the SVG's shapes ({exc})") from None
 
     page = page_box(root)
-    raw_paths = []
+    runs, inten, labels = [], [], []
     for index, p in enumerate(paths):
         el = getattr(p, "element", None)
         if el is not None and _hidden(el):
             continue
         p = _exact_arcs(p, el)
-        try:
-            subs = p.continuous_subpaths()
-        except (ValueError, IndexError, AssertionError):
-            subs = [p]
-        raw_paths.append((subs, _element_intensity(el) if el is not None else 1.0,
-                          _element_label(el, index) if el is not None else f"path {index + 1}"))
-
-    # Bounds from segment end and control points (a Bezier lies inside its control hull; an
-    # arc's own bbox) give a first scale; the flattened drawing gives the exact bounds.
-    ctrl = [c for subs, _i, _l in raw_paths for sp in subs for seg in sp for c in _seg_pts(seg)]
-    if not ctrl:
+        intensity = _element_intensity(el) if el is not None else 1.0
+        label = _element_label(el, index) if el is not None else f"path {index + 1}"
+        # continuous sub-paths (as Path.continuous_subpaths splits them), as segment lists
+        segs = list(p)
+        begin = 0
+        for i in range(len(segs)):
+            if i == len(segs) - 1 or segs[i].end != segs[i + 1].start:
+                runs.append(segs[begin:i + 1])
+                inten.append(intensity)
+                labels.append(label)
+                begin = i + 1
+    if not runs:
         hint = (f" ({texts} <text> element(s) found: convert text to paths, or use --text)"
                 if texts else "")
         raise VectorgenError(f"{path}: nothing drawable in this SVG{hint}")
-    ctrl = np.array(ctrl, dtype=complex)
+    # every segment read out of svgpathtools once, for the bounds and for each flattening
+    table = segment_table(runs)
+
+    # Bounds from segment end and control points (a Bezier lies inside its control hull; an
+    # arc's own bbox) give a first scale; the flattened drawing gives the exact bounds.
+    ctrl = table.control_points()
+    if table.arcs:
+        ctrl = np.concatenate([ctrl, np.array([c for seg in table.arcs for c in _seg_pts(seg)],
+                                              dtype=complex)])
     if not np.all(np.isfinite(ctrl)) or np.abs(ctrl).max() > 1e12:
         raise VectorgenError(f"{path}: coordinates are not finite or are enormous")
     hull = (ctrl.real.min(), ctrl.imag.min(), ctrl.real.max(), ctrl.imag.max())
@@ -179,16 +188,11 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
             return m, -m @ np.array([cx, cy])
         return fit_transform(box, screen, flip_y=True)
 
+    inten = np.array(inten, dtype=float)
+
     def flatten(scale):
-        runs, inten, labels = [], [], []
-        for subs, intensity, label in raw_paths:
-            for sp in subs:
-                if len(sp):
-                    runs.append(list(sp))
-                    inten.append(intensity)
-                    labels.append(label)
-        pts, offsets = flatten_runs(runs, tolerance_mm / scale)
-        out = clean(Strokes(pts, offsets, np.array(inten, dtype=float), labels))
+        pts, offsets = flatten_table(table, tolerance_mm / scale)
+        out = clean(Strokes(pts, offsets, inten.copy(), list(labels)))
         check_finite(out, path)
         return out
 
@@ -258,17 +262,19 @@ def _exact_arcs(p, el):
     c + R(phi) diag(rx, ry) (cos t, sin t) under p -> A p + b has as semi-axes the singular
     values of K = A R(phi) diag(rx, ry) and its major axis along K's first left singular
     vector; the sweep turns over when det A < 0; the large-arc flag is kept."""
-    from svgpathtools import Arc, Line, parse_path
-    from svgpathtools.document import CONVERSIONS
-    from svgpathtools.path import transform, transform_segments_together
+    from svgpathtools import Arc
 
     tf = getattr(p, "transform", None)
     if tf is None or el is None or not any(isinstance(seg, Arc) for seg in p):
         return p
     tf = np.asarray(tf, dtype=float)
     a = tf[:2, :2]
-    if np.array_equal(a, np.eye(2)):
+    if a[0, 0] == 1.0 and a[1, 1] == 1.0 and a[0, 1] == 0.0 and a[1, 0] == 0.0:
         return p            # a pure translation maps arcs exactly
+    from svgpathtools import Line, parse_path
+    from svgpathtools.document import CONVERSIONS
+    from svgpathtools.path import transform, transform_segments_together
+
     convert = CONVERSIONS.get(_local(el.tag))
     if convert is None:
         return p
