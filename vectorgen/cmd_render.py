@@ -74,7 +74,6 @@ def _check_seconds(seconds):
 def cmd_render(args) -> int:
     import numpy as np
 
-    from .preview import phosphor_image, write_png
     from .render import report_line
     from .sinks import SIGNAL_EXTENSIONS, atomic_write_bytes, check_output_path, write_signal
 
@@ -91,7 +90,10 @@ def cmd_render(args) -> int:
     if total * 4 > MAX_OUTPUT_BYTES:
         raise VectorgenError(f"the output would be {total * 4 / 2**30:.1f} GiB, over the 4 GiB "
                              f"a WAV file can hold; shorten --seconds or lower --rate")
-    signal = np.concatenate([np.tile(f.signal, (n, 1)) for f, n in parts])
+    if len(parts) == 1 and parts[0][1] == 1:
+        signal = parts[0][0].signal         # one frame once: no copies
+    else:
+        signal = np.concatenate([np.tile(f.signal, (n, 1)) for f, n in parts])
     first = parts[0][0]
     rep = first.report(profile)
     rep.update(frames=int(sum(n for _f, n in parts)), distinct_frames=len(parts),
@@ -100,6 +102,8 @@ def cmd_render(args) -> int:
     _warn_all(notes)
     write_signal(args.output, signal, renderer.rate, first.names, pcm16=args.pcm16)
     if args.preview:
+        from .preview import phosphor_image, write_png
+
         write_png(args.preview, phosphor_image(first.signal, profile, renderer.channels,
                                                first.plan.lit))
     if args.report:

@@ -11,7 +11,6 @@ from __future__ import annotations
 import copy
 import math
 import os
-import tomllib
 from dataclasses import dataclass, field
 
 from .errors import VectorgenError
@@ -289,6 +288,8 @@ def load_profile(path: str | os.PathLike | None) -> Profile:
     """The profile at `path`, or the built-in default when `path` is None."""
     if path is None:
         return Profile()
+    import tomllib      # only when a profile file is read
+
     path = os.fspath(path)
     try:
         with open(path, "rb") as fh:

@@ -73,12 +73,10 @@ def write_signal(path: str, signal: np.ndarray, rate: int, names: list[str],
     if ext == ".wav":
         from scipy.io import wavfile
 
-        data = to_int16(signal) if pcm16 else signal.astype(np.float32)
+        data = to_int16(signal) if pcm16 else signal.astype(np.float32, copy=False)
 
         def writer(fh):
-            buf = io.BytesIO()
-            wavfile.write(buf, int(rate), data)
-            fh.write(buf.getbuffer())
+            wavfile.write(fh, int(rate), data)      # straight into the temporary file
     elif ext == ".csv":
         def writer(fh):
             text = io.StringIO()
