@@ -26,7 +26,7 @@ from .errors import VectorgenError
 from .strokes import Strokes
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
-SAMPLE_CHUNK = 1 << 14        # samples per chunk when laying out a frame
+CHUNK = 1 << 14               # vertices or samples worked on at a time
 GAP = 1.0  # arc-length gap between strokes on the global axis (any positive number works)
 
 
@@ -58,16 +58,16 @@ class Plan:
     """Where the spot is at every sample of one frame, and whether it is lit.
 
     The frame is a run of lit samples per stroke (in drawing order), each followed by the run
-    of blanked samples that jumps to the next stroke. `x`, `y` and `lit` are stored per sample;
-    `points`, `intensity`, `stroke` and the reordered `strokes` are made from them, the runs
-    and the drawing order when first asked for (the signal path needs none of them)."""
+    of blanked samples that jumps to the next stroke. `lit` is stored per sample; the spot
+    position of any span of samples is worked out from the frame's layout on demand
+    (`positions`), so the signal path goes through the frame in cache-sized chunks and never
+    holds it whole. `x`, `y`, `points`, `intensity`, `stroke` and the reordered `strokes` are
+    made when first asked for, and kept."""
 
-    def __init__(self, x: np.ndarray, y: np.ndarray, lit: np.ndarray, runs: np.ndarray,
-                 strokes, stroke_intensity: np.ndarray, drawn_length_mm: float,
-                 moving_samples: int, blanked_moves: int, blanked_length_mm: float,
-                 corners: int):
-        self.x = x                  # (n,) spot position in mm at every sample ...
-        self.y = y                  # (n,) ... (x, y)
+    def __init__(self, layout: "_Layout", lit: np.ndarray, runs: np.ndarray, strokes,
+                 stroke_intensity: np.ndarray, drawn_length_mm: float, moving_samples: int,
+                 blanked_moves: int, blanked_length_mm: float, corners: int):
+        self._layout = layout
         self.lit = lit              # (n,) bool: beam on
         self.runs = runs            # (2 S,) samples lit on stroke i, then blanked, in turn
         self.stroke_intensity = stroke_intensity    # (S,) of the strokes in the order drawn
@@ -79,6 +79,25 @@ class Plan:
         self._cache: dict = {}
         # the strokes in the order drawn, or a function that makes them
         self._strokes = strokes
+
+    def positions(self, start: int, stop: int) -> tuple[np.ndarray, np.ndarray]:
+        """Spot x and y in mm of samples start .. stop - 1."""
+        if "x" in self._cache:
+            return self._cache["x"][start:stop], self._cache["y"][start:stop]
+        return self._layout.positions(start, stop)
+
+    @property
+    def x(self) -> np.ndarray:
+        """(n,) spot x in mm at every sample."""
+        if "x" not in self._cache:
+            self._cache["x"], self._cache["y"] = self._layout.positions(0, self.samples)
+        return self._cache["x"]
+
+    @property
+    def y(self) -> np.ndarray:
+        """(n,) spot y in mm at every sample."""
+        self.x
+        return self._cache["y"]
 
     @property
     def samples(self) -> int:
@@ -277,38 +296,39 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     P = len(px)
     first, last = offs[:-1], offs[1:] - 1
 
-    # Global arc-length axis: strokes laid end to end with a gap between them. The buffers are
-    # reused as soon as a value is no longer needed: each new full-length array costs more
-    # than the arithmetic on it.
-    dx, dy = np.diff(px), np.diff(py)
-    sq = dx * dx                        # squared segment lengths dx dx + dy dy
-    t = dy * dy
-    sq += t
-    np.sqrt(sq, out=t)                  # segment lengths
-    if P > 1:
-        t[last[:-1]] = GAP
-    s = np.empty(P)
-    s[0] = 0.0
-    np.cumsum(t, out=s[1:])
-    lengths = s[last] - s[first]
+    # Global arc-length axis s: strokes laid end to end with a gap between them; and the
+    # sharp corners (interior vertices only). Worked out CHUNK segments at a time (each chunk
+    # starts one segment early, for the corner at its first vertex; the running sum goes on
+    # from the last chunk's end), so the only full-length arrays are s and the corner flags.
     is_last = np.zeros(P, dtype=bool)
     is_last[last] = True
-
-    # Sharp corners (interior vertices only).
+    s = np.empty(P)
+    s[0] = 0.0
     sharp = np.zeros(P, dtype=bool)
-    if P > 2:
-        # turn > corner angle  <=>  cos(turn) = d_in . d_out / (|d_in| |d_out|) < cos(angle)
-        dot, norm = t[:-1], dy[:-1]
-        np.multiply(dx[:-1], dx[1:], out=dot)
-        np.multiply(dy[:-1], dy[1:], out=dx[:-1])
-        dot += dx[:-1]                  # dx dx' + dy dy'
-        np.multiply(sq[:-1], sq[1:], out=norm)
-        np.sqrt(norm, out=norm)
-        norm *= np.cos(np.radians(timing.corner_angle_deg))
-        np.less(dot, norm, out=sharp[1:-1])
-        sharp[first] = False
-        sharp[last] = False
-    del dx, dy, sq, t
+    cos_corner = np.cos(np.radians(timing.corner_angle_deg))
+    for g0 in range(0, P - 1, CHUNK):
+        g1 = min(P - 1, g0 + CHUNK)             # segments g0 .. g1 - 1 (segment i: i -> i + 1)
+        a0 = max(g0 - 1, 0)
+        dx, dy = np.diff(px[a0:g1 + 1]), np.diff(py[a0:g1 + 1])
+        sq = dx * dx                            # squared segment lengths dx dx + dy dy
+        sq += dy * dy
+        seg = np.empty(g1 - g0 + 1)             # the sum so far, then segment lengths
+        seg[0] = s[g0]
+        np.sqrt(sq[g0 - a0:], out=seg[1:])
+        seg[1:][is_last[g0:g1]] = GAP           # a stroke's last vertex -> the next's first
+        np.cumsum(seg, out=seg)
+        s[g0 + 1:g1 + 1] = seg[1:]
+        if len(dx) > 1:
+            # turn > corner angle <=> cos(turn) = d_in . d_out / (|d_in| |d_out|) < cos(angle)
+            dot = dx[:-1] * dx[1:]
+            dot += dy[:-1] * dy[1:]
+            norm = sq[:-1] * sq[1:]
+            np.sqrt(norm, out=norm)
+            norm *= cos_corner
+            np.less(dot, norm, out=sharp[a0 + 1:g1])
+    sharp[first] = False
+    sharp[last] = False
+    lengths = s[last] - s[first]
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
     # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
@@ -396,39 +416,53 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     runs = np.column_stack([lit_count, blank_size]).ravel()
     lit = np.repeat(np.tile(np.array([True, False]), S), runs)
 
-    # Every sample's position along the global axis, then x and y by linear interpolation
-    # (the jump samples get their stroke's end here and their line below). Done in chunks of
-    # samples, so that the only full-length arrays are the block index and the results: the
-    # chunks' temporaries stay in cache, and a frame needs that much less fresh memory.
-    blk = np.repeat(np.arange(len(blk_size), dtype=np.int32), blk_size)
-    blk_start = blk_end - blk_size
-    x, y = np.empty(n), np.empty(n)
-    for c0 in range(0, n, SAMPLE_CHUNK):
-        c1 = min(n, c0 + SAMPLE_CHUNK)
-        b = blk[c0:c1]
-        mult = np.arange(c0 + 1, c1 + 1) - blk_start[b]        # k + 1 ...
-        np.minimum(mult, blk_move[b], out=mult)                 # ... held at n_move
-        param = blk_step[b] * mult
-        param += blk_base[b]
-        x[c0:c1] = np.interp(param, s, px)
-        y[c0:c1] = np.interp(param, s, py)
-    del blk
-
     # Blanked samples: jump samples then settle samples at the destination.
     blank_total = int(blank_size.sum())
-    if blank_total:
-        kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
-        frac = np.minimum(kb + 1, np.repeat(jumps, blank_size)) / \
-            np.repeat(np.maximum(jumps, 1), blank_size)
-        at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
-        x[at] = np.repeat(jump_from[:, 0], blank_size) + \
-            np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
-        y[at] = np.repeat(jump_from[:, 1], blank_size) + \
-            np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
+    kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
+    frac = np.minimum(kb + 1, np.repeat(jumps, blank_size)) / \
+        np.repeat(np.maximum(jumps, 1), blank_size)
+    at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
+    blank_x = np.repeat(jump_from[:, 0], blank_size) + \
+        np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
+    blank_y = np.repeat(jump_from[:, 1], blank_size) + \
+        np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
 
-    return Plan(x, y, lit, runs, drawn, stroke_intensity,
+    layout = _Layout(s, px, py, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
+                     at, blank_x, blank_y)
+    return Plan(layout, lit, runs, drawn, stroke_intensity,
                 drawn_length_mm=float(lengths.sum()),
                 moving_samples=int(piece_n.sum()),
                 blanked_moves=int((jumps > 0).sum()),
                 blanked_length_mm=float(jump_len.sum()),
                 corners=int(sharp.sum() + closed_sharp.sum()))
+
+
+class _Layout:
+    """A frame's samples as blocks on the global arc-length axis s (vertices px, py): block b
+    covers samples start[b] .. end[b] - 1 at parameters base + step * min(k + 1, move), k the
+    sample's place in its block; the blanked samples `at` lie on straight jumps instead."""
+
+    def __init__(self, s, px, py, start, end, move, step, base, at, blank_x, blank_y):
+        self.s, self.px, self.py = s, px, py
+        self.start, self.end, self.move, self.step, self.base = start, end, move, step, base
+        self.at, self.blank_x, self.blank_y = at, blank_x, blank_y
+
+    def positions(self, c0: int, c1: int) -> tuple[np.ndarray, np.ndarray]:
+        """x and y of samples c0 .. c1 - 1, by linear interpolation along the axis."""
+        b0 = int(np.searchsorted(self.end, c0, side="right"))
+        b1 = int(np.searchsorted(self.end, c1 - 1, side="right")) + 1
+        sizes = np.minimum(self.end[b0:b1], c1) - np.maximum(self.start[b0:b1], c0)
+        mult = np.arange(c0 + 1, c1 + 1)                        # k + 1 ...
+        mult -= np.repeat(self.start[b0:b1], sizes)
+        np.minimum(mult, np.repeat(self.move[b0:b1], sizes), out=mult)     # ... held at n_move
+        param = np.repeat(self.step[b0:b1], sizes)
+        param *= mult
+        param += np.repeat(self.base[b0:b1], sizes)
+        x = np.interp(param, self.s, self.px)
+        y = np.interp(param, self.s, self.py)
+        i0, i1 = np.searchsorted(self.at, [c0, c1])
+        if i1 > i0:
+            j = self.at[i0:i1] - c0
+            x[j] = self.blank_x[i0:i1]
+            y[j] = self.blank_y[i0:i1]
+        return x, y

@@ -60,7 +60,7 @@ def plan_channels(plan, model: DeflectionModel, output, channels: int):
     lo, hi = np.inf, -np.inf
     for c0 in range(0, n, CHUNK):
         c1 = min(n, c0 + CHUNK)
-        d = model.drive_from_xy(plan.x[c0:c1], plan.y[c0:c1])
+        d = model.drive_from_xy(*plan.positions(c0, c1))
         dlo, dhi = d.min(), d.max()
         if not (-1.0 <= dlo and dhi <= 1.0):
             return _whole_frame(plan, model, output, channels)
