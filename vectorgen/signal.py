@@ -57,6 +57,11 @@ def plan_channels(plan, model: DeflectionModel, output, channels: int):
     sig = np.empty((n, len(names)), dtype=np.float32)
     cols = [(j, 0 if name == "x" else 1, name in output.invert)
             for j, name in enumerate(names) if name != "z"]
+    zcols = [j for j, name in enumerate(names) if name == "z"]
+    if zcols:                           # the Z level of every lit or blanked run
+        zrun = _z_levels(plan, output)
+        run_end = np.cumsum(plan.runs)
+        run_start = run_end - plan.runs
     lo, hi = np.inf, -np.inf
     for c0 in range(0, n, CHUNK):
         c1 = min(n, c0 + CHUNK)
@@ -70,9 +75,13 @@ def plan_channels(plan, model: DeflectionModel, output, channels: int):
                 np.negative(d[:, k], out=sig[c0:c1, j], casting="same_kind")
             else:
                 sig[c0:c1, j] = d[:, k]
-    for j, name in enumerate(names):
-        if name == "z":
-            _z_channel(sig[:, j], plan, output)
+        if zcols:
+            r0 = int(np.searchsorted(run_end, c0, side="right"))
+            r1 = int(np.searchsorted(run_end, c1 - 1, side="right")) + 1
+            sizes = np.minimum(run_end[r0:r1], c1) - np.maximum(run_start[r0:r1], c0)
+            z = np.repeat(zrun[r0:r1], sizes)
+            for j in zcols:
+                sig[c0:c1, j] = z
     return sig, names, (float(max(abs(lo), abs(hi))) if n else 0.0)
 
 
@@ -82,14 +91,19 @@ def _whole_frame(plan, model, output, channels):
     return sig, names, (float(np.abs(drive).max()) if len(drive) else 0.0)
 
 
+def _z_levels(plan, output) -> np.ndarray:
+    """float32 Z of each run of a beam plan (lit on stroke i, blanked after it, in turn)."""
+    S = len(plan.runs) // 2
+    z = np.column_stack([plan.stroke_intensity,
+                         np.full(S, output.z_blank_level, dtype=float)]).ravel()
+    z = -z if output.z_polarity == "negative" else z
+    return z.astype(np.float32)
+
+
 def _z_channel(out: np.ndarray, plan, output) -> None:
     runs = getattr(plan, "runs", None)
     if runs is not None:        # a beam plan: one level per lit or blanked run
-        S = len(runs) // 2
-        z = np.column_stack([plan.stroke_intensity,
-                             np.full(S, output.z_blank_level, dtype=float)]).ravel()
-        z = -z if output.z_polarity == "negative" else z
-        out[...] = np.repeat(z.astype(np.float32), runs)
+        out[...] = np.repeat(_z_levels(plan, output), runs)
     else:
         z = np.where(plan.lit, plan.intensity, output.z_blank_level)
         out[...] = -z if output.z_polarity == "negative" else z
