@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import VectorgenError
+from .geometry import ClippedStrokes
 from .strokes import Strokes
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
@@ -144,7 +145,9 @@ def order_strokes(strokes: Strokes) -> Strokes:
     """Greedy nearest-neighbour order from the first stroke; open strokes may be reversed."""
     if strokes.count <= 2:
         return strokes
-    return _reordered(strokes, *_greedy_order(strokes))
+    offs = strokes.offsets
+    return _reordered(strokes, *_greedy_order(strokes.points[offs[:-1]],
+                                              strokes.points[offs[1:] - 1]))
 
 
 def _reordered(strokes: Strokes, order: np.ndarray, flip: np.ndarray) -> Strokes:
@@ -164,36 +167,30 @@ def _reordered_offsets(strokes: Strokes, order: np.ndarray) -> np.ndarray:
     return np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
 
 
-def _reordered_xy(strokes: Strokes, order: np.ndarray, flip: np.ndarray):
-    """x and y of _reordered(...).points as two contiguous arrays, made straight from the
-    strokes' columns."""
-    x0, y0 = strokes.points[:, 0], strokes.points[:, 1]
-    offs = strokes.offsets.tolist()
+def _reordered_xy(arrays: list, order: np.ndarray, flip: np.ndarray):
+    """x and y of the strokes' points (`arrays`: each stroke's (k, 2) points) in the new order,
+    reversed strokes flipped, as two contiguous arrays: the same values as
+    _reordered(...).points."""
     xs, ys = [], []
     for i, f in zip(order.tolist(), flip.tolist()):
-        a, b = offs[i], offs[i + 1]
-        if f:
-            xs.append(x0[a:b][::-1])
-            ys.append(y0[a:b][::-1])
-        else:
-            xs.append(x0[a:b])
-            ys.append(y0[a:b])
+        a = arrays[i][::-1] if f else arrays[i]
+        xs.append(a[:, 0])
+        ys.append(a[:, 1])
     return np.concatenate(xs), np.concatenate(ys)
 
 
-def _greedy_order(strokes: Strokes) -> tuple[np.ndarray, np.ndarray]:
-    """(order, reversed) of the greedy nearest-entry walk. Candidate entry points: 2 i = the
-    start of stroke i, 2 i + 1 = its end (entering there draws it backwards; never for a closed
-    stroke). Each step is one squared distance dx dx + dy dy from the beam to every candidate
+def _greedy_order(starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(order, reversed) of the greedy nearest-entry walk through strokes with these first and
+    last points ((S, 2) each). Candidate entry points: 2 i = the start of stroke i, 2 i + 1 =
+    its end (entering there draws it backwards; never for a closed stroke). Each step is one squared distance dx dx + dy dy from the beam to every candidate
     (x and y as contiguous 1-D arrays, the arithmetic in preallocated buffers) and one argmin
     (the first of equal minima). A used candidate is moved to infinity, so its distance is
     infinite, and once most are used up they are dropped (order kept, so ties still go to the
     lowest candidate)."""
-    S = strokes.count
-    pts, offs = strokes.points, strokes.offsets
+    S = len(starts)
     cx, cy = np.empty(2 * S), np.empty(2 * S)
-    cx[0::2], cx[1::2] = pts[offs[:-1], 0], pts[offs[1:] - 1, 0]
-    cy[0::2], cy[1::2] = pts[offs[:-1], 1], pts[offs[1:] - 1, 1]
+    cx[0::2], cx[1::2] = starts[:, 0], ends[:, 0]
+    cy[0::2], cy[1::2] = starts[:, 1], ends[:, 1]
     ex, ey = cx.tolist(), cy.tolist()   # the beam leaves by the other end: candidate k ^ 1
     closed = (cx[0::2] == cx[1::2]) & (cy[0::2] == cy[1::2])
     row_of = np.arange(2 * S)           # where each candidate is in cx, cy (-1: used or never)
@@ -277,18 +274,31 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
     if strokes.count == 0:
         raise VectorgenError("nothing to draw: the drawing is empty (or wholly off the screen)")
     S = strokes.count
+    if isinstance(strokes, ClippedStrokes) and (not (reorder and S > 2)
+                                                 or strokes.has_duplicates()):
+        strokes = strokes.packed()
     if reorder and S > 2:
-        order, flip = _greedy_order(strokes)
+        # per-stroke points: views of the packed array, or of a clipped drawing's pieces
+        if isinstance(strokes, ClippedStrokes):
+            arrays = strokes.arrays()
+            starts, ends = np.array([a[0] for a in arrays]), np.array([a[-1] for a in arrays])
+        else:
+            pts, o = strokes.points, strokes.offsets
+            arrays = [pts[a:b] for a, b in zip(o[:-1].tolist(), o[1:].tolist())]
+            starts, ends = pts[o[:-1]], pts[o[1:] - 1]
+        order, flip = _greedy_order(starts, ends)
         # x, y (contiguous: whole-array arithmetic on them is several times faster than on
         # the columns of an (P, 2) array) in the new order; the reordered Strokes themselves
-        # are made only if asked for
-        px, py = _reordered_xy(strokes, order, flip)
+        # are made from them only if asked for
+        px, py = _reordered_xy(arrays, order, flip)
+        del arrays
         offs = _reordered_offsets(strokes, order)
         stroke_intensity = strokes.intensity[order]
-        source = strokes
+        labels = strokes.labels
 
         def drawn():
-            return _reordered(source, order, flip)
+            return Strokes(np.column_stack([px, py]), offs, stroke_intensity,
+                           [labels[i] for i in order])
     else:
         px = np.ascontiguousarray(strokes.points[:, 0])
         py = np.ascontiguousarray(strokes.points[:, 1])

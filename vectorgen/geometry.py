@@ -250,6 +250,14 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     a stretch drawn twice into one and nodes the stroke where it crosses itself, and GEOS can
     return slivers outside the area for spiky strokes.) Returns the clipped drawing and the
     number of strokes that were cut or dropped."""
+    out, n_cut = clip_parts(strokes, screen)
+    return (out.packed() if isinstance(out, ClippedStrokes) else out), n_cut
+
+
+def clip_parts(strokes: Strokes, screen):
+    """clip_to_screen, with the clipped drawing (when anything was cut) as a ClippedStrokes:
+    its strokes are views of the drawing's points and the cut pieces, not yet packed into one
+    array (the beam planner reads them in its own order without that copy)."""
     if not strokes.count:
         return strokes, 0
     if _bounds_inside(strokes.points, screen):
@@ -311,26 +319,74 @@ def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     j = 0                               # next piece
     for i in [*cut.tolist(), strokes.count]:
         if i > done:                    # untouched strokes done .. i - 1
-            chunks.append(strokes.points[offs[done]:offs[i]])
+            chunks.append((strokes.points[offs[done]:offs[i]], i - done))
             counts.append(np.diff(offs[done:i + 1]))
             sids.append(np.arange(done, i))
         while j < len(pieces) and pieces[j][0] == i:
-            chunks.append(pieces[j][1])
+            chunks.append((pieces[j][1], 1))
             counts.append([len(pieces[j][1])])
             sids.append([i])
             j += 1
         done = i + 1
     if not chunks:
         return Strokes.empty(), int((~all_in).sum())
-    counts = np.concatenate(counts).astype(np.int64)
     sids = np.concatenate(sids).astype(np.int64)
-    from .strokes import clean
+    return ClippedStrokes(strokes, chunks, counts, sids), int((~all_in).sum())
 
-    out = clean(Strokes(np.concatenate(chunks).astype(float, copy=False),
-                        np.concatenate([[0], np.cumsum(counts)]),
-                        strokes.intensity[sids].astype(float),
-                        [strokes.labels[i] for i in sids.tolist()]))
-    return out, int((~all_in).sum())
+
+class ClippedStrokes:
+    """A clipped drawing before packing: the strokes in order, as stretches of untouched
+    strokes (views of the source drawing's points) and cut pieces. `packed()` is the Strokes
+    clip_to_screen returns (one points array, consecutive duplicate points dropped)."""
+
+    def __init__(self, source: Strokes, chunks: list, counts: list, sids: np.ndarray):
+        self._chunks = chunks           # [(points (k, 2), strokes in it)] in order
+        counts = np.concatenate(counts).astype(np.int64)
+        self.offsets = np.concatenate([[0], np.cumsum(counts)])
+        self.intensity = source.intensity[sids].astype(float)
+        self.labels = [source.labels[i] for i in sids.tolist()]
+        self._packed = None
+
+    @property
+    def count(self) -> int:
+        return len(self.offsets) - 1
+
+    def packed(self) -> Strokes:
+        if self._packed is None:
+            from .strokes import clean
+
+            pts = np.concatenate([c for c, _n in self._chunks]).astype(float, copy=False)
+            self._packed = clean(Strokes(pts, self.offsets, self.intensity, self.labels))
+        return self._packed
+
+    @property
+    def points(self) -> np.ndarray:
+        return self.packed().points
+
+    def arrays(self) -> list:
+        """Each stroke's (k, 2) points, in order (views)."""
+        out = []
+        offs = self.offsets.tolist()
+        at = 0                          # stroke index
+        for chunk, n in self._chunks:
+            start = offs[at]
+            for i in range(at, at + n):
+                out.append(chunk[offs[i] - start:offs[i + 1] - start])
+            at += n
+        return out
+
+    def has_duplicates(self) -> bool:
+        """Whether a stroke repeats a point consecutively (packing would drop it)."""
+        offs = self.offsets
+        at = 0
+        for chunk, n in self._chunks:
+            if len(chunk) > 1:
+                same = (chunk[1:, 0] == chunk[:-1, 0]) & (chunk[1:, 1] == chunk[:-1, 1])
+                same[offs[at + 1:at + n] - offs[at] - 1] = False    # across strokes
+                if same.any():
+                    return True
+            at += n
+        return False
 
 
 def _bounds_inside(points: np.ndarray, screen, eps: float = 1e-9) -> bool:

@@ -13,7 +13,7 @@ import numpy as np
 from .beamplan import Plan, Timing, plan_frame
 from .deflection import DeflectionModel
 from .errors import VectorgenError
-from .geometry import clip_to_screen
+from .geometry import clip_parts
 from .signal import correct, plan_channels
 from .strokes import Strokes, check_finite
 
@@ -140,7 +140,7 @@ class Renderer:
 
     def frame(self, strokes: Strokes) -> Frame:
         check_finite(strokes)
-        clipped, n_clipped = clip_to_screen(strokes, self.profile.screen)
+        clipped, n_clipped = clip_parts(strokes, self.profile.screen)
         if clipped.count == 0:
             raise VectorgenError("nothing to draw: the drawing lies wholly outside the usable "
                                  "area of the screen")
