@@ -182,51 +182,55 @@ def _reordered_xy(arrays: list, order: np.ndarray, flip: np.ndarray):
 def _greedy_order(starts: np.ndarray, ends: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(order, reversed) of the greedy nearest-entry walk through strokes with these first and
     last points ((S, 2) each). Candidate entry points: 2 i = the start of stroke i, 2 i + 1 =
-    its end (entering there draws it backwards; never for a closed stroke). Each step is one squared distance dx dx + dy dy from the beam to every candidate
-    (x and y as contiguous 1-D arrays, the arithmetic in preallocated buffers) and one argmin
-    (the first of equal minima). A used candidate is moved to infinity, so its distance is
-    infinite, and once most are used up they are dropped (order kept, so ties still go to the
-    lowest candidate)."""
+    its end (entering there draws it backwards; never for a closed stroke). Each step is one
+    squared distance dx dx + dy dy from the beam to every candidate (x and y as contiguous 1-D
+    arrays, the arithmetic in preallocated buffers) and one argmin (the first of equal minima);
+    the bookkeeping is in Python lists. A used candidate is moved to infinity, so its distance
+    is infinite, and once most are used up they are dropped (order kept, so ties still go to
+    the lowest candidate)."""
     S = len(starts)
     cx, cy = np.empty(2 * S), np.empty(2 * S)
     cx[0::2], cx[1::2] = starts[:, 0], ends[:, 0]
     cy[0::2], cy[1::2] = starts[:, 1], ends[:, 1]
     ex, ey = cx.tolist(), cy.tolist()   # the beam leaves by the other end: candidate k ^ 1
     closed = (cx[0::2] == cx[1::2]) & (cy[0::2] == cy[1::2])
-    row_of = np.arange(2 * S)           # where each candidate is in cx, cy (-1: used or never)
-    row_of[1::2][closed] = -1
-    row_of[0:2] = -1                    # stroke 0 is drawn first, forwards
-    cx[row_of < 0] = np.inf
-    ids = np.arange(2 * S)              # the candidate at each position of cx, cy
-    live = int((row_of >= 0).sum())
-    order = np.empty(S, dtype=np.int64)
-    flip = np.zeros(S, dtype=bool)
-    order[0] = 0
+    row = np.arange(2 * S)              # where each candidate is in cx, cy (-1: used or never)
+    row[1::2][closed] = -1
+    row[0:2] = -1                       # stroke 0 is drawn first, forwards
+    cx[row < 0] = np.inf
+    live = int((row >= 0).sum())
+    row_of = row.tolist()
+    ids = list(range(2 * S))            # the candidate at each position of cx, cy
+    order, flip = [0], [False]
     bx, by = np.empty(2 * S), np.empty(2 * S)
     subtract, multiply, add = np.subtract, np.multiply, np.add
+    inf = np.inf
     e = 1                               # the beam is at the end of stroke 0
-    for used in range(1, S):
+    for _ in range(1, S):
         subtract(cx, ex[e], out=bx)
         multiply(bx, bx, out=bx)
         subtract(cy, ey[e], out=by)
         multiply(by, by, out=by)
         add(bx, by, out=bx)
-        k = int(ids[int(bx.argmin())])
+        k = ids[bx.argmin()]
         pick = k >> 1
-        order[used], flip[used] = pick, k & 1
+        order.append(pick)
+        flip.append(bool(k & 1))
         e = k ^ 1
-        for q in (2 * pick, 2 * pick + 1):
-            r = int(row_of[q])
+        for q in (k & ~1, k | 1):
+            r = row_of[q]
             if r >= 0:
-                cx[r] = np.inf
+                cx[r] = inf
                 row_of[q] = -1
                 live -= 1
         if 4 * live < len(ids) and len(ids) > 256:
-            keep = row_of[ids] >= 0
-            cx, cy, ids = cx[keep], cy[keep], ids[keep]
-            row_of[ids] = np.arange(len(ids))
+            keep = [i for i, c in enumerate(ids) if row_of[c] >= 0]
+            cx, cy = cx[keep], cy[keep]
+            ids = [ids[i] for i in keep]
+            for i, c in enumerate(ids):
+                row_of[c] = i
             bx, by = np.empty(len(ids)), np.empty(len(ids))
-    return order, flip
+    return np.array(order, dtype=np.int64), np.array(flip, dtype=bool)
 
 
 def _turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:

@@ -11,6 +11,7 @@ Everything is array-in/array-out: points are (n, 2) float arrays.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -33,6 +34,11 @@ class DeflectionModel:
         d = prof.deflection
         return cls(np.asarray(d.matrix_mm, dtype=float), np.asarray(d.offset_mm, dtype=float),
                    float(d.k_radial), float(d.k_x), float(d.k_y), float(prof.screen.norm_radius))
+
+    @cached_property
+    def _inverse(self) -> np.ndarray:
+        """A^-1 (worked out once: the model is immutable)."""
+        return np.linalg.inv(self.matrix)
 
     @property
     def has_distortion(self) -> bool:
@@ -125,7 +131,7 @@ class DeflectionModel:
         # u = A^-1 (q - c), the 2 x 2 inverse applied elementwise (a LAPACK solve against a
         # (2, n) right-hand side costs several times more per sample), each product written
         # into the output or into a reused buffer
-        inv = np.linalg.inv(self.matrix)
+        inv = self._inverse
         shape = np.shape(px)
         x, y = np.empty(shape), np.empty(shape)
         np.subtract(px, self.offset[0], out=x)
