@@ -18,6 +18,7 @@ import numpy as np
 from .errors import VectorgenError
 
 INVERSE_TOL_MM = 1e-6      # the inverse must reproduce every point to a nanometre
+NEWTON_CHUNK = 1 << 13     # points stepped at a time by the inverse distortion
 
 
 @dataclass(frozen=True)
@@ -70,9 +71,9 @@ class DeflectionModel:
         """undistort on x and y given apart (arrays of one shape); returns (x, y)."""
         R2 = self.norm_radius ** 2
         kr, kx, ky = self.k_radial, self.k_x, self.k_y
-        # First guess: divide by the local scale factor evaluated at p.
-        x, y = px, py
-        for _ in range(max_iter):
+
+        def step(x, y, px, py):
+            """One Newton step on (x, y) towards D(x, y) = (px, py): (x, y, converged)."""
             x2, y2 = x * x / R2, y * y / R2
             fx = 1.0 + kr * (x2 + y2) + kx * y2
             fy = 1.0 + kr * (x2 + y2) + ky * x2
@@ -86,34 +87,79 @@ class DeflectionModel:
             det = j11 * j22 - j12 * j21
             dx = (rx * j22 - ry * j12) / det
             dy = (ry * j11 - rx * j21) / det
-            x = x - dx
-            y = y - dy
-            if np.all(np.abs(dx) + np.abs(dy) < tol_mm):
-                break
-        x, y = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
-        # the result must land back on p (distort() written out on x and y)
-        xh, yh = x / self.norm_radius, y / self.norm_radius
-        r2 = xh * xh + yh * yh
-        err = np.max([np.abs(x * (1.0 + kr * r2 + kx * yh * yh) - px).max(initial=0.0),
-                      np.abs(y * (1.0 + kr * r2 + ky * xh * xh) - py).max(initial=0.0)])
-        if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))) or err > INVERSE_TOL_MM:
+            return x - dx, y - dy, bool(np.all(np.abs(dx) + np.abs(dy) < tol_mm))
+
+        # First guess: p itself. All points take the same number of steps: until every one
+        # has converged. A large drawing goes through in chunks that stay in cache, each chunk
+        # stepped as far as the others, which gives the very numbers of stepping it whole.
+        shape = np.shape(px)
+        n = int(np.prod(shape)) if shape else 1
+        fpx, fpy = np.ravel(px), np.ravel(py)
+        bounds = [(c0, min(n, c0 + NEWTON_CHUNK)) for c0 in range(0, n, NEWTON_CHUNK)]
+        if len(bounds) <= 1:
+            x, y = fpx, fpy
+            for _ in range(max_iter):
+                x, y, done = step(x, y, fpx, fpy)
+                if done:
+                    break
+            parts = [(np.asarray(x, dtype=float), np.asarray(y, dtype=float))]
+            bounds = [(0, n)]
+        else:
+            state = [[fpx[a:b], fpy[a:b], 0, {}] for a, b in bounds]  # x, y, steps, done at
+
+            def advance(st, a, b, to):
+                while st[2] < to:
+                    st[0], st[1], done = step(st[0], st[1], fpx[a:b], fpy[a:b])
+                    st[2] += 1
+                    st[3][st[2]] = done
+
+            for st, (a, b) in zip(state, bounds):      # each chunk to its own convergence
+                while st[2] < max_iter and not (st[2] and st[3][st[2]]):
+                    advance(st, a, b, st[2] + 1)
+            k = max(st[2] for st in state)
+            while True:                 # the first step count at which every chunk is done
+                for st, (a, b) in zip(state, bounds):
+                    advance(st, a, b, k)
+                if k >= max_iter or all(st[3][k] for st in state):
+                    break
+                k += 1
+            parts = [(st[0], st[1]) for st in state]
+
+        # The result must land back on p (distort() written out on x and y), and only the
+        # branch joined to the tube axis is physical: there both scale factors and the Jacobian
+        # stay positive. Beyond a fold (strong barrel) Newton can converge to a far point that
+        # also satisfies D(q) = p; refuse it rather than drive the beam there. (Checked chunk
+        # by chunk: the same worst error and first fold as over the whole.)
+        finite, errs, fold_at = True, [], -1
+        for (x, y), (a, b) in zip(parts, bounds):
+            qx, qy = fpx[a:b], fpy[a:b]
+            finite = finite and bool(np.all(np.isfinite(x)) and np.all(np.isfinite(y)))
+            xh, yh = x / self.norm_radius, y / self.norm_radius
+            r2 = xh * xh + yh * yh
+            errs.append(np.abs(x * (1.0 + kr * r2 + kx * yh * yh) - qx).max(initial=0.0))
+            errs.append(np.abs(y * (1.0 + kr * r2 + ky * xh * xh) - qy).max(initial=0.0))
+            if fold_at < 0:
+                x2, y2 = x * x / R2, y * y / R2
+                fx = 1.0 + kr * (x2 + y2) + kx * y2
+                fy = 1.0 + kr * (x2 + y2) + ky * x2
+                det = (fx + 2.0 * kr * x2) * (fy + 2.0 * kr * y2) - \
+                    4.0 * (kr + kx) * (kr + ky) * x2 * y2
+                folded = (fx <= 0) | (fy <= 0) | (det <= 0)
+                if np.any(folded):
+                    fold_at = a + int(np.argmax(folded))
+        if not finite or np.max(errs) > INVERSE_TOL_MM:
             raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
                                  "drawing (check k_radial, k_x, k_y)")
-        # Only the branch joined to the tube axis is physical: there both scale factors and the
-        # Jacobian stay positive. Beyond a fold (strong barrel) Newton can converge to a far
-        # point that also satisfies D(q) = p; refuse it rather than drive the beam there.
-        x2, y2 = x * x / R2, y * y / R2
-        fx = 1.0 + kr * (x2 + y2) + kx * y2
-        fy = 1.0 + kr * (x2 + y2) + ky * x2
-        det = (fx + 2.0 * kr * x2) * (fy + 2.0 * kr * y2) - 4.0 * (kr + kx) * (kr + ky) * x2 * y2
-        folded = (fx <= 0) | (fy <= 0) | (det <= 0)
-        if np.any(folded):
-            i = int(np.argmax(np.ravel(folded)))
-            where = (np.ravel(px)[i], np.ravel(py)[i])
+        if fold_at >= 0:
             raise VectorgenError("the profile's pincushion terms fold the picture: no position "
-                                 f"near the axis lands at ({where[0]:.2f}, {where[1]:.2f}) mm "
-                                 "(check k_radial, k_x, k_y)")
-        return x, y
+                                 f"near the axis lands at ({fpx[fold_at]:.2f}, "
+                                 f"{fpy[fold_at]:.2f}) mm (check k_radial, k_x, k_y)")
+        if len(parts) == 1:
+            x, y = parts[0]
+        else:
+            x = np.concatenate([p[0] for p in parts])
+            y = np.concatenate([p[1] for p in parts])
+        return x.reshape(shape), y.reshape(shape)
 
     # -- full model ------------------------------------------------------------------------------
     def drive_to_mm(self, u: np.ndarray) -> np.ndarray:
