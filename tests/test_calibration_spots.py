@@ -7,8 +7,9 @@ import numpy as np
 import pytest
 
 from calib_helpers import (TRUE_GAIN_X, TRUE_GAIN_Y, TRUE_K, TRUE_ROTATION_DEG, apply_homography,
-                           bench_profile, camera_homography, default_tube, run_cli, snapshot,
+                           bench_profile, camera_homography, default_tube, snapshot,
                            synthetic_photo, write_profile)
+from render_helpers import run_cli
 from calibration.fit import fit_sheet
 from calibration.sheet import read_sheet, sheet_text
 from calibration.spots import homography
