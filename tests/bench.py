@@ -403,7 +403,7 @@ def main() -> int:
                   f"joined into one polyline, fitted into 100 x 80 mm, np.interp to {n_b} evenly "
                   f"spaced samples, X/Y only (no clipping, correction, blanking or dwells); "
                   f"worst chord error {err:.4f} mm")
-        print(f"  vectorgen is {ratio:.2f} x faster than the equal-accuracy baseline "
+        print(f"  vectorgen is {ratio:.2f} x as fast as the equal-accuracy baseline "
               f"({ratio_ref:.2f} x against {REFERENCE_STEPS} steps)")
         t_imp = best_of([sys.executable, "-c", "import svgpathtools"], env=env)
         t_py = best_of([sys.executable, "-c", "import numpy"], env=env)
