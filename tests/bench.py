@@ -126,11 +126,12 @@ def stage_times(svg: str):
     plan = plan_frame(clipped, renderer.timing, renderer.target, True)
     t["plan"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    signal, names, peak = plan_channels(plan, renderer.model, prof.output, renderer.channels)
+    signal, names, peak, drive = plan_channels(plan, renderer.model, prof.output,
+                                               renderer.channels)
     t["channels"] = time.perf_counter() - t0
     model = renderer.model
-    frame = Frame(signal, names, plan, lambda: correct(plan, model), RATE, n_cut,
-                  peak_drive=peak)
+    frame = Frame(signal, names, plan, drive if drive is not None else
+                  (lambda: correct(plan, model)), RATE, n_cut, peak_drive=peak)
     return t, frame, strokes, renderer
 
 

@@ -146,10 +146,12 @@ class Renderer:
                                  "area of the screen")
         plan = plan_frame(clipped, self.timing, self.target, self.settings.reorder)
         del clipped
-        signal, names, peak = plan_channels(plan, self.model, self.profile.output, self.channels)
-        model = self.model
-        frame = Frame(signal, names, plan, lambda: correct(plan, model), self.rate, n_clipped,
-                      peak_drive=peak)
+        signal, names, peak, drive = plan_channels(plan, self.model, self.profile.output,
+                                                   self.channels)
+        if drive is None:           # made chunk by chunk: worked out again if asked for
+            model = self.model
+            drive = lambda: correct(plan, model)    # noqa: E731
+        frame = Frame(signal, names, plan, drive, self.rate, n_clipped, peak_drive=peak)
         if n_clipped:
             frame.notes.append(f"{n_clipped} stroke(s) cut at the edge of the usable area")
         if frame.refresh_hz < self.profile.beam.flicker_hz:

@@ -43,7 +43,8 @@ CHUNK = 1 << 14        # samples corrected at a time by plan_channels
 
 
 def plan_channels(plan, model: DeflectionModel, output, channels: int):
-    """correct() then to_channels() for a whole beam plan: (signal, names, peak |drive|).
+    """correct() then to_channels() for a whole beam plan: (signal, names, peak |drive|, the
+    drive (n, 2) when it was made whole, else None).
 
     Without pincushion terms the correction is the same arithmetic sample by sample, so it
     runs in chunks that stay in cache, straight into the signal, and the full (n, 2) drive is
@@ -82,13 +83,13 @@ def plan_channels(plan, model: DeflectionModel, output, channels: int):
             z = np.repeat(zrun[r0:r1], sizes)
             for j in zcols:
                 sig[c0:c1, j] = z
-    return sig, names, (float(max(abs(lo), abs(hi))) if n else 0.0)
+    return sig, names, (float(max(abs(lo), abs(hi))) if n else 0.0), None
 
 
 def _whole_frame(plan, model, output, channels):
     drive = correct(plan, model)
     sig, names = to_channels(drive, plan, output, channels)
-    return sig, names, (float(np.abs(drive).max()) if len(drive) else 0.0)
+    return sig, names, (float(np.abs(drive).max()) if len(drive) else 0.0), drive
 
 
 def _z_levels(plan, output) -> np.ndarray:
