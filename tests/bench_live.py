@@ -82,6 +82,7 @@ def soak(seconds: float = 60.0, rate: int = 96000, update_ms: float = 20.0,
             return sig
 
         producer = live.Producer(player, render, sched)
+        producer.prime()            # as `vectorgen play` does: updates due at once made first
         watcher = jack.Client("vgsoakwatch", servername=server.name, no_start_server=True)
         xruns = []
         watcher.set_xrun_callback(lambda delay: xruns.append(delay))
