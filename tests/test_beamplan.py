@@ -307,3 +307,13 @@ def test_cli_samples_refresh_seconds_and_report(tmp_path):
     assert rep["samples_per_frame"] == 96000 // 50
     assert rate == 96000 and len(data) == math.ceil(0.5 * 96000 / 1920) * 1920
     assert rep["refresh_hz"] == pytest.approx(50.0)
+
+
+def test_dots_only_frame_warns_of_a_stationary_spot():
+    # A still, bright spot burns the phosphor (common practice, no source): a frame that is
+    # only dots must say so; a frame with a line in it need not.
+    dots = render(polylines([(0.0, 0.0)], [(10.0, 5.0)]))
+    assert any("stationary spot" in n for n in dots.notes)
+    assert dots.plan.drawn_length_mm == 0
+    line = render(polylines([(0.0, 0.0)], [(-20.0, 0.0), (20.0, 0.0)]))
+    assert not any("stationary spot" in n for n in line.notes)

@@ -154,6 +154,9 @@ class Renderer:
         frame = Frame(signal, names, plan, drive, self.rate, n_clipped, peak_drive=peak)
         if n_clipped:
             frame.notes.append(f"{n_clipped} stroke(s) cut at the edge of the usable area")
+        if plan.drawn_length_mm == 0:
+            frame.notes.append("this frame is dots only: the beam stands still on them; keep the "
+                               "brightness low, a stationary spot burns the phosphor")
         if frame.refresh_hz < self.profile.beam.flicker_hz:
             frame.notes.append(
                 f"refresh {frame.refresh_hz:.1f} Hz is below the {self.profile.beam.flicker_hz:g}"
