@@ -26,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from vectorgen.errors import VectorgenError
+from vectorgen.inputs import read_bytes
 
 COLUMNS = ("point", "drive_x", "drive_y", "measured_x_mm", "measured_y_mm")
 HEADER = ",".join(COLUMNS)
@@ -73,17 +74,7 @@ def parse_number(text: str) -> float | None:
 
 
 def _read_text(path: str) -> str:
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read(64 * 1024 * 1024 + 1)
-    except FileNotFoundError:
-        raise VectorgenError(f"sheet not found: {path}") from None
-    except IsADirectoryError:
-        raise VectorgenError(f"sheet is a folder, not a file: {path}") from None
-    except OSError as exc:
-        raise VectorgenError(f"cannot read sheet {path}: {exc.strerror}") from None
-    if len(raw) > 64 * 1024 * 1024:
-        raise VectorgenError(f"{path}: too large for a measurement sheet")
+    raw = read_bytes(path, "sheet", 64 * 1024 * 1024)
     try:
         return raw.decode("utf-8-sig")      # spreadsheets often write a byte-order mark
     except UnicodeDecodeError:

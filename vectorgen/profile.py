@@ -18,6 +18,7 @@ from .errors import VectorgenError
 DEFLECTION_KINDS = ("magnetic", "electrostatic")
 SCREEN_SHAPES = ("rectangle", "round")
 SIGNALS = ("x", "y", "z")
+MAX_PROFILE_BYTES = 1 << 20
 
 
 @dataclass
@@ -290,20 +291,16 @@ def load_profile(path: str | os.PathLike | None) -> Profile:
         return Profile()
     import tomllib      # only when a profile file is read
 
+    from .inputs import read_bytes
+
     path = os.fspath(path)
+    raw = read_bytes(path, "profile", MAX_PROFILE_BYTES)
     try:
-        with open(path, "rb") as fh:
-            data = tomllib.load(fh)
-    except FileNotFoundError:
-        raise VectorgenError(f"profile not found: {path}") from None
-    except IsADirectoryError:
-        raise VectorgenError(f"profile is a folder, not a file: {path}") from None
+        data = tomllib.loads(raw.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
         raise VectorgenError(f"{path}: not valid TOML: {exc}") from None
     except UnicodeDecodeError:
         raise VectorgenError(f"{path}: not a text file") from None
-    except OSError as exc:
-        raise VectorgenError(f"cannot read profile {path}: {exc.strerror}") from None
     return profile_from_dict(data, source=path)
 
 

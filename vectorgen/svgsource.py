@@ -22,6 +22,7 @@ import warnings
 import numpy as np
 
 from .errors import VectorgenError
+from .inputs import read_bytes
 from .geometry import fit_transform, flatten_table, segment_table
 from .strokes import Strokes, check_finite, clean
 
@@ -53,18 +54,7 @@ def read_svg_tree(path: str):
     """Parse an SVG file safely; returns the root element (tags in the SVG namespace)."""
     import xml.etree.ElementTree as ET
 
-    try:
-        size = os.path.getsize(path)
-        if size > MAX_SVG_BYTES:
-            raise VectorgenError(f"{path}: SVG larger than {MAX_SVG_BYTES >> 20} MiB")
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except FileNotFoundError:
-        raise VectorgenError(f"file not found: {path}") from None
-    except IsADirectoryError:
-        raise VectorgenError(f"is a folder, not an SVG file: {path}") from None
-    except OSError as exc:
-        raise VectorgenError(f"cannot read {path}: {exc.strerror}") from None
+    data = read_bytes(path, "SVG file", MAX_SVG_BYTES)
     if b"<!ENTITY" in data or b"<!entity" in data:
         raise VectorgenError(f"{path}: refusing an SVG with XML entity declarations")
     try:
