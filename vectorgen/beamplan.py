@@ -19,6 +19,7 @@ settles keep their lengths and the drawing's samples are shared out by arc lengt
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -77,28 +78,28 @@ class Plan:
         self.blanked_moves = blanked_moves
         self.blanked_length_mm = blanked_length_mm
         self.corners = corners
-        self._cache: dict = {}
         # the strokes in the order drawn, or a function that makes them
         self._strokes = strokes
 
     def positions(self, start: int, stop: int) -> tuple[np.ndarray, np.ndarray]:
         """Spot x and y in mm of samples start .. stop - 1."""
-        if "x" in self._cache:
-            return self._cache["x"][start:stop], self._cache["y"][start:stop]
+        if "_xy" in self.__dict__:               # the whole frame was already worked out
+            return self._xy[0][start:stop], self._xy[1][start:stop]
         return self._layout.positions(start, stop)
+
+    @cached_property
+    def _xy(self) -> tuple[np.ndarray, np.ndarray]:
+        return self._layout.positions(0, self.samples)
 
     @property
     def x(self) -> np.ndarray:
         """(n,) spot x in mm at every sample."""
-        if "x" not in self._cache:
-            self._cache["x"], self._cache["y"] = self._layout.positions(0, self.samples)
-        return self._cache["x"]
+        return self._xy[0]
 
     @property
     def y(self) -> np.ndarray:
         """(n,) spot y in mm at every sample."""
-        self.x
-        return self._cache["y"]
+        return self._xy[1]
 
     @property
     def samples(self) -> int:
@@ -115,30 +116,22 @@ class Plan:
             self._strokes = self._strokes()
         return self._strokes
 
-    @property
+    @cached_property
     def points(self) -> np.ndarray:
         """(n, 2) spot position in mm at every sample."""
-        if "points" not in self._cache:
-            self._cache["points"] = np.column_stack([self.x, self.y])
-        return self._cache["points"]
+        return np.column_stack([self.x, self.y])
 
-    @property
+    @cached_property
     def intensity(self) -> np.ndarray:
         """(n,) brightness 0..1 (0 where blanked)."""
-        if "intensity" not in self._cache:
-            S = self.stroke_count
-            self._cache["intensity"] = np.repeat(
-                np.column_stack([self.stroke_intensity, np.zeros(S)]).ravel(), self.runs)
-        return self._cache["intensity"]
+        S = self.stroke_count
+        return np.repeat(np.column_stack([self.stroke_intensity, np.zeros(S)]).ravel(), self.runs)
 
-    @property
+    @cached_property
     def stroke(self) -> np.ndarray:
         """(n,) index into `strokes` of each lit sample, -1 when blanked."""
-        if "stroke" not in self._cache:
-            S = self.stroke_count
-            self._cache["stroke"] = np.repeat(
-                np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), self.runs)
-        return self._cache["stroke"]
+        S = self.stroke_count
+        return np.repeat(np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), self.runs)
 
 
 def order_strokes(strokes: Strokes) -> Strokes:
@@ -424,7 +417,6 @@ def plan_frame(strokes: Strokes, timing: Timing, target_samples: int | None = No
         blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o], blk_lit[o])
     blk_size = blk_move + blk_rep
     blk_end = np.cumsum(blk_size)
-    n = int(blk_end[-1])
     lit_count = np.bincount(blk_stroke[blk_lit], weights=blk_size[blk_lit],
                             minlength=S).astype(np.int64)
     runs = np.column_stack([lit_count, blank_size]).ravel()
