@@ -46,6 +46,12 @@ def warn(message: str) -> None:
     print(f"{PROG}: warning: {message}", file=sys.stderr)
 
 
+def warn_notes(notes) -> None:
+    """Each distinct note once, in order, as a warning line."""
+    for n in dict.fromkeys(notes):
+        warn(n)
+
+
 def main(argv=None) -> int:
     try:
         parser = build_parser()

@@ -48,7 +48,8 @@ def cmd_pattern(args) -> int:
     from calibration.patterns import make_pattern
     from calibration.sheet import write_sheet
 
-    from .cmd_render import _check_seconds, load_setup
+    from .cli import warn_notes
+    from .cmd_render import _check_seconds, load_setup, repeats_for
     from .preview import phosphor_image, write_png
     from .render import report_line
     from .sinks import SIGNAL_EXTENSIONS, check_output_path, write_signal
@@ -74,10 +75,8 @@ def cmd_pattern(args) -> int:
                        mark=args.mark)
     frame = renderer.frame(pat.strokes)
     notes = list(frame.notes)
-    repeats = 1 if args.seconds is None else max(1, math.ceil(args.seconds * renderer.rate
-                                                              / frame.samples))
-    for n in dict.fromkeys(notes):
-        _warn(n)
+    repeats = repeats_for(args.seconds, renderer.rate, frame.samples)
+    warn_notes(notes)
     if args.mark == "dot":
         _warn("dot marks hold the beam on a few spots: keep the brightness low, a dwelling spot "
               "burns the phosphor")

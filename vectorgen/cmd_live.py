@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import os
 import signal as _signal
 import sys
@@ -40,8 +39,9 @@ def cmd_devices(args) -> int:
 
 
 def _check_seconds(seconds):
-    if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= 366 * 24 * 3600):
-        raise VectorgenError(f"--seconds must be > 0 and at most a year (got {seconds})")
+    from .cmd_render import _check_seconds as check
+
+    check(seconds, 366 * 24 * 3600, "a year")
 
 
 class _Stopper:
@@ -109,10 +109,9 @@ def cmd_play(args) -> int:
         frame = scene.frame(renderer, t0)
         notes.extend(frame.notes)
 
-    from .cli import warn
+    from .cli import warn_notes
 
-    for n in dict.fromkeys(notes):
-        warn(n)
+    warn_notes(notes)
     player = live.Player(frame.signal, rate, park, zmask, stop_after=stop_after)
     producer = None
     if animated:

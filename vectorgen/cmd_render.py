@@ -6,6 +6,7 @@ import json
 import math
 
 
+from .cli import warn_notes
 from .errors import VectorgenError
 from .sources import add_source_arguments
 
@@ -55,20 +56,17 @@ def timeline(args, profile, renderer, notes: list, seconds: float | None):
         return scene_timeline(args.source, renderer, seconds, notes)
     frame = renderer.frame(static_strokes(args, profile, notes))
     notes.extend(frame.notes)
-    repeats = 1 if seconds is None else max(1, math.ceil(seconds * renderer.rate / frame.samples))
-    return [(frame, repeats)]
+    return [(frame, repeats_for(seconds, renderer.rate, frame.samples))]
 
 
-def _warn_all(notes):
-    from .cli import warn
-
-    for n in dict.fromkeys(notes):
-        warn(n)
+def repeats_for(seconds: float | None, rate: int, frame_samples: int) -> int:
+    """Whole frames that fill `seconds` (one frame when None)."""
+    return 1 if seconds is None else max(1, math.ceil(seconds * rate / frame_samples))
 
 
-def _check_seconds(seconds):
-    if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= 24 * 3600):
-        raise VectorgenError(f"--seconds must be > 0 and at most a day (got {seconds})")
+def _check_seconds(seconds, most_s: float = 24 * 3600, most: str = "a day"):
+    if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= most_s):
+        raise VectorgenError(f"--seconds must be > 0 and at most {most} (got {seconds})")
 
 
 def cmd_render(args) -> int:
@@ -99,7 +97,7 @@ def cmd_render(args) -> int:
     rep.update(frames=int(sum(n for _f, n in parts)), distinct_frames=len(parts),
                total_samples=len(signal), duration_s=len(signal) / renderer.rate,
                output=args.output, sample_format="int16" if args.pcm16 else "float32")
-    _warn_all(notes)
+    warn_notes(notes)
     write_signal(args.output, signal, renderer.rate, first.names, pcm16=args.pcm16)
     if args.preview:
         from .preview import phosphor_image, write_png
@@ -129,7 +127,7 @@ def cmd_preview(args) -> int:
     profile, renderer = load_setup(args)
     notes: list = []
     frame = timeline(args, profile, renderer, notes, None)[0][0]
-    _warn_all(notes)
+    warn_notes(notes)
     write_png(args.output, phosphor_image(frame.signal, profile, renderer.channels,
                                           frame.plan.lit, width_px=args.width,
                                           spot_mm=args.spot))
