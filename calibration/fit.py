@@ -185,13 +185,7 @@ def circle_aspect(names: list, p: np.ndarray) -> float | None:
 
 def area_samples(screen, n: int = 41) -> np.ndarray:
     """Points filling the usable area and its outline (mm)."""
-    w, h = screen.half_extent
-    gx, gy = np.meshgrid(np.linspace(-w, w, n), np.linspace(-h, h, n))
-    pts = np.column_stack([gx.ravel(), gy.ravel()])
-    if screen.shape == "round":
-        r = screen.diameter_mm / 2.0
-        pts = pts[np.hypot(pts[:, 0], pts[:, 1]) <= r]
-    return np.vstack([pts, screen.outline(721)])
+    return screen.samples(n)
 
 
 def check_model(model: DeflectionModel, screen) -> dict:
@@ -405,7 +399,7 @@ def write_residual_png(path: str, result: FitResult, screen, title: str = "") ->
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
 
-    from vectorgen.sinks import atomic_write
+    from vectorgen.files import atomic_write
 
     w, h = screen.half_extent
     r = result.residuals

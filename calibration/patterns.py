@@ -51,11 +51,7 @@ class Pattern:
 
 
 def _inside(points: np.ndarray, screen, extent: float) -> bool:
-    if screen.shape == "round":
-        return bool(np.all(np.hypot(points[:, 0], points[:, 1])
-                           <= extent * screen.diameter_mm / 2.0))
-    w, h = screen.half_extent
-    return bool(np.all((np.abs(points[:, 0]) <= extent * w) & (np.abs(points[:, 1]) <= extent * h)))
+    return bool(screen.contains(points, extent, eps=0.0).all())
 
 
 def lattice(rows: int, cols: int) -> tuple[list, np.ndarray]:

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from vectorgen.errors import VectorgenError
-from vectorgen.inputs import read_bytes
+from vectorgen.files import read_bytes, write_with_backup
 
 COLUMNS = ("point", "drive_x", "drive_y", "measured_x_mm", "measured_y_mm")
 HEADER = ",".join(COLUMNS)
@@ -179,33 +179,8 @@ def sheet_text(names, drive, measured=None) -> str:
     return buf.getvalue()
 
 
-def keep_backup(path: str) -> str | None:
-    """Copy an existing file at `path` to the first free PATH.bakN; returns that path."""
-    from vectorgen.sinks import atomic_write_bytes
-
-    if not os.path.exists(path):
-        return None
-    n = 1
-    while os.path.exists(f"{path}.bak{n}"):
-        n += 1
-    backup = f"{path}.bak{n}"
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise VectorgenError(f"cannot read {path} to keep a backup: {exc.strerror}") from None
-    atomic_write_bytes(backup, data)
-    return backup
-
-
 def write_sheet(path: str, names, drive, measured=None) -> str | None:
     """Write a sheet atomically; an existing file at `path` is kept as PATH.bakN first.
     Returns the backup's path (None when there was nothing to keep)."""
-    from vectorgen.sinks import atomic_write_bytes, check_output_path
-
-    path = os.fspath(path)
-    check_output_path(path, (".csv",))
-    data = sheet_text(names, drive, measured).encode("utf-8")
-    backup = keep_backup(path)
-    atomic_write_bytes(path, data)
-    return backup
+    return write_with_backup(os.fspath(path), sheet_text(names, drive, measured).encode("utf-8"),
+                             (".csv",))

@@ -390,7 +390,7 @@ class SpotsResult:
         matplotlib.use("Agg")
         from matplotlib.figure import Figure
 
-        from vectorgen.sinks import atomic_write
+        from vectorgen.files import atomic_write
 
         h, w = self.gray.shape
         fig = Figure(figsize=(10, 10 * h / w), dpi=max(100, int(w / 10)))

@@ -1,7 +1,7 @@
 """Tube profiles: the screen, the output channels, the deflection model and the beam timing.
 
 A profile is a TOML file a person can read and edit. Every key is checked against the schema
-below: an unknown key, a wrong type or an impossible value is a `VectorgenError` naming the key.
+below: an unknown key, a wrong type or an impossible value is a `ProfileError` naming the key.
 With no profile the built-in default applies (uncalibrated, linear, full scale at the edges of
 the usable area).
 """
@@ -13,46 +13,15 @@ import math
 import os
 from dataclasses import dataclass, field
 
-from .errors import VectorgenError
+from .errors import ProfileError
+from .screen import SCREEN_SHAPES, Screen
+
+__all__ = ["Beam", "Deflection", "Output", "Profile", "SCHEMA", "Screen", "default_for_screen",
+           "load_profile", "profile_from_dict", "profile_text", "profile_to_dict", "save_profile"]
 
 DEFLECTION_KINDS = ("magnetic", "electrostatic")
-SCREEN_SHAPES = ("rectangle", "round")
 SIGNALS = ("x", "y", "z")
 MAX_PROFILE_BYTES = 1 << 20
-
-
-@dataclass
-class Screen:
-    shape: str = "rectangle"
-    width_mm: float = 100.0
-    height_mm: float = 80.0
-    diameter_mm: float = 0.0
-
-    @property
-    def half_extent(self) -> tuple[float, float]:
-        """Half width and half height of the usable area's bounding box, in mm."""
-        if self.shape == "round":
-            return self.diameter_mm / 2.0, self.diameter_mm / 2.0
-        return self.width_mm / 2.0, self.height_mm / 2.0
-
-    @property
-    def norm_radius(self) -> float:
-        """The radius the distortion terms are normalised by: the half-diagonal of a rectangle,
-        the radius of a round face."""
-        if self.shape == "round":
-            return self.diameter_mm / 2.0
-        return math.hypot(self.width_mm, self.height_mm) / 2.0
-
-    def outline(self, n: int = 721):
-        """Closed outline of the usable area as an (n, 2) array in mm."""
-        import numpy as np
-
-        if self.shape == "round":
-            t = np.linspace(0.0, 2.0 * np.pi, n)
-            r = self.diameter_mm / 2.0
-            return np.column_stack([r * np.cos(t), r * np.sin(t)])
-        w, h = self.half_extent
-        return np.array([[-w, -h], [w, -h], [w, h], [-w, h], [-w, -h]], dtype=float)
 
 
 @dataclass
@@ -229,14 +198,14 @@ SCHEMA = {
 def _typed(where: str, value, kind):
     if kind is float:
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise VectorgenError(f"{where} must be a number (got {value!r})")
+            raise ProfileError(f"{where} must be a number (got {value!r})")
         return float(value)
     if kind is int:
         if isinstance(value, bool) or not isinstance(value, int):
-            raise VectorgenError(f"{where} must be a whole number (got {value!r})")
+            raise ProfileError(f"{where} must be a whole number (got {value!r})")
         return value
     if not isinstance(value, kind):
-        raise VectorgenError(f"{where} must be a {kind.__name__} (got {value!r})")
+        raise ProfileError(f"{where} must be a {kind.__name__} (got {value!r})")
     return value
 
 
@@ -249,22 +218,22 @@ def profile_from_dict(data: dict, source: str = "<dict>") -> Profile:
             continue
         if key not in SCHEMA:
             known = ", ".join(["name"] + [f"[{k}]" for k in SCHEMA])
-            raise VectorgenError(f"{source}: unknown key '{key}' (known: {known})")
+            raise ProfileError(f"{source}: unknown key '{key}' (known: {known})")
         cls, fields = SCHEMA[key]
         if not isinstance(value, dict):
-            raise VectorgenError(f"{source}: '{key}' must be a table [{key}]")
+            raise ProfileError(f"{source}: '{key}' must be a table [{key}]")
         section = getattr(prof, key)
         for sub, subvalue in value.items():
             where = f"{source}: [{key}] {sub}"
             if sub not in fields:
-                raise VectorgenError(f"{source}: unknown key '{sub}' in [{key}] "
+                raise ProfileError(f"{source}: unknown key '{sub}' in [{key}] "
                                      f"(known: {', '.join(fields)})")
             kind, check = fields[sub]
             subvalue = _typed(where, subvalue, kind)
             if check is not None:
                 problem = check(subvalue)
                 if problem:
-                    raise VectorgenError(f"{where} {problem} (got {subvalue!r})")
+                    raise ProfileError(f"{where} {problem} (got {subvalue!r})")
             if kind is list:
                 subvalue = [[float(e) for e in r] if isinstance(r, list) else
                             (float(r) if isinstance(r, (int, float)) else r) for r in subvalue]
@@ -280,9 +249,9 @@ def profile_from_dict(data: dict, source: str = "<dict>") -> Profile:
 def _check_whole(prof: Profile, source: str) -> None:
     s = prof.screen
     if s.shape == "round" and not s.diameter_mm > 0:
-        raise VectorgenError(f"{source}: [screen] diameter_mm is required when shape = 'round'")
+        raise ProfileError(f"{source}: [screen] diameter_mm is required when shape = 'round'")
     if prof.output.channels == 3 and "z" not in prof.output.channel_order(3):
-        raise VectorgenError(f"{source}: [output] order must include 'z' for 3 channels")
+        raise ProfileError(f"{source}: [output] order must include 'z' for 3 channels")
 
 
 def load_profile(path: str | os.PathLike | None) -> Profile:
@@ -291,16 +260,16 @@ def load_profile(path: str | os.PathLike | None) -> Profile:
         return Profile()
     import tomllib      # only when a profile file is read
 
-    from .inputs import read_bytes
+    from .files import read_bytes
 
     path = os.fspath(path)
     raw = read_bytes(path, "profile", MAX_PROFILE_BYTES)
     try:
         data = tomllib.loads(raw.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
-        raise VectorgenError(f"{path}: not valid TOML: {exc}") from None
+        raise ProfileError(f"{path}: not valid TOML: {exc}") from None
     except UnicodeDecodeError:
-        raise VectorgenError(f"{path}: not a text file") from None
+        raise ProfileError(f"{path}: not a text file") from None
     return profile_from_dict(data, source=path)
 
 
@@ -342,21 +311,9 @@ def profile_text(prof: Profile) -> str:
 def save_profile(prof: Profile, path: str | os.PathLike) -> str | None:
     """Write the profile atomically. An existing file at `path` is kept as a numbered backup
     (PATH.bak1, PATH.bak2, ...); returns the backup's path, or None if there was nothing to keep."""
-    from .sinks import atomic_write_bytes, check_output_path
+    from .files import write_with_backup
 
-    path = os.fspath(path)
-    check_output_path(path)
-    text = profile_text(prof).encode("utf-8")
-    backup = None
-    if os.path.exists(path):
-        n = 1
-        while os.path.exists(f"{path}.bak{n}"):
-            n += 1
-        backup = f"{path}.bak{n}"
-        with open(path, "rb") as fh:
-            atomic_write_bytes(backup, fh.read())
-    atomic_write_bytes(path, text)
-    return backup
+    return write_with_backup(os.fspath(path), profile_text(prof).encode("utf-8"))
 
 
 def default_for_screen(prof: Profile) -> Profile:
