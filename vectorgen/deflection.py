@@ -15,7 +15,9 @@ from functools import cached_property
 
 import numpy as np
 
-from .errors import VectorgenError
+from .errors import ProfileError
+
+__all__ = ["DeflectionModel", "INVERSE_TOL_MM"]
 
 INVERSE_TOL_MM = 1e-6      # the inverse must reproduce every point to a nanometre
 NEWTON_CHUNK = 1 << 13     # points stepped at a time by the inverse distortion
@@ -45,17 +47,32 @@ class DeflectionModel:
     def has_distortion(self) -> bool:
         return bool(self.k_radial or self.k_x or self.k_y)
 
-    # -- distortion D and its Jacobian -----------------------------------------------------------
+    # -- distortion D and its Jacobian: the one copy of the formula ---------------------------
+    def _factors(self, x: np.ndarray, y: np.ndarray):
+        """The scale factors of D at (x, y): D(x, y) = (x fx, y fy), with
+        fx = 1 + k_r rho^2 + k_x yh^2, fy = 1 + k_r rho^2 + k_y xh^2. Also xh^2, yh^2."""
+        R2 = self.norm_radius ** 2
+        x2, y2 = x * x / R2, y * y / R2
+        r2 = x2 + y2
+        return 1.0 + self.k_radial * r2 + self.k_x * y2, 1.0 + self.k_radial * r2 + self.k_y * x2, \
+            x2, y2
+
+    def _jacobian(self, x, y, fx, fy):
+        """The Jacobian of D at (x, y) given its factors: (j11, j12, j21, j22)."""
+        R2 = self.norm_radius ** 2
+        kr, kx, ky = self.k_radial, self.k_x, self.k_y
+        return (fx + 2.0 * kr * x * x / R2, 2.0 * (kr + kx) * x * y / R2,
+                2.0 * (kr + ky) * x * y / R2, fy + 2.0 * kr * y * y / R2)
+
     def distort(self, q: np.ndarray) -> np.ndarray:
+        """D(q) for points q (..., 2) in mm."""
         q = np.asarray(q, dtype=float)
         if not self.has_distortion:
             return q.copy()
-        xh = q[..., 0] / self.norm_radius
-        yh = q[..., 1] / self.norm_radius
-        r2 = xh * xh + yh * yh
+        fx, fy, _x2, _y2 = self._factors(q[..., 0], q[..., 1])
         out = np.empty_like(q)
-        out[..., 0] = q[..., 0] * (1.0 + self.k_radial * r2 + self.k_x * yh * yh)
-        out[..., 1] = q[..., 1] * (1.0 + self.k_radial * r2 + self.k_y * xh * xh)
+        out[..., 0] = q[..., 0] * fx
+        out[..., 1] = q[..., 1] * fy
         return out
 
     def undistort(self, p: np.ndarray, tol_mm: float = 1e-9, max_iter: int = 50) -> np.ndarray:
@@ -69,21 +86,12 @@ class DeflectionModel:
     def _undistort_xy(self, px: np.ndarray, py: np.ndarray, tol_mm: float = 1e-9,
                       max_iter: int = 50) -> tuple[np.ndarray, np.ndarray]:
         """undistort on x and y given apart (arrays of one shape); returns (x, y)."""
-        R2 = self.norm_radius ** 2
-        kr, kx, ky = self.k_radial, self.k_x, self.k_y
-
         def step(x, y, px, py):
             """One Newton step on (x, y) towards D(x, y) = (px, py): (x, y, converged)."""
-            x2, y2 = x * x / R2, y * y / R2
-            fx = 1.0 + kr * (x2 + y2) + kx * y2
-            fy = 1.0 + kr * (x2 + y2) + ky * x2
+            fx, fy, _x2, _y2 = self._factors(x, y)
             rx = x * fx - px
             ry = y * fy - py
-            # Jacobian of (x fx, y fy)
-            j11 = fx + x * (2.0 * kr * x / R2)
-            j12 = x * (2.0 * (kr + kx) * y / R2)
-            j21 = y * (2.0 * (kr + ky) * x / R2)
-            j22 = fy + y * (2.0 * kr * y / R2)
+            j11, j12, j21, j22 = self._jacobian(x, y, fx, fy)
             det = j11 * j22 - j12 * j21
             dx = (rx * j22 - ry * j12) / det
             dy = (ry * j11 - rx * j21) / det
@@ -125,35 +133,29 @@ class DeflectionModel:
                 k += 1
             parts = [(st[0], st[1]) for st in state]
 
-        # The result must land back on p (distort() written out on x and y), and only the
-        # branch joined to the tube axis is physical: there both scale factors and the Jacobian
-        # stay positive. Beyond a fold (strong barrel) Newton can converge to a far point that
-        # also satisfies D(q) = p; refuse it rather than drive the beam there. (Checked chunk
-        # by chunk: the same worst error and first fold as over the whole.)
+        # The result must land back on p, and only the branch joined to the tube axis is
+        # physical: there both scale factors and the Jacobian stay positive. Beyond a fold
+        # (strong barrel) Newton can converge to a far point that also satisfies D(q) = p;
+        # refuse it rather than drive the beam there. (Checked chunk by chunk: the same worst
+        # error and first fold as over the whole.)
         finite, errs, fold_at = True, [], -1
         for (x, y), (a, b) in zip(parts, bounds):
-            qx, qy = fpx[a:b], fpy[a:b]
             finite = finite and bool(np.all(np.isfinite(x)) and np.all(np.isfinite(y)))
-            xh, yh = x / self.norm_radius, y / self.norm_radius
-            r2 = xh * xh + yh * yh
-            errs.append(np.abs(x * (1.0 + kr * r2 + kx * yh * yh) - qx).max(initial=0.0))
-            errs.append(np.abs(y * (1.0 + kr * r2 + ky * xh * xh) - qy).max(initial=0.0))
+            fx, fy, _x2, _y2 = self._factors(x, y)
+            errs.append(np.abs(x * fx - fpx[a:b]).max(initial=0.0))
+            errs.append(np.abs(y * fy - fpy[a:b]).max(initial=0.0))
             if fold_at < 0:
-                x2, y2 = x * x / R2, y * y / R2
-                fx = 1.0 + kr * (x2 + y2) + kx * y2
-                fy = 1.0 + kr * (x2 + y2) + ky * x2
-                det = (fx + 2.0 * kr * x2) * (fy + 2.0 * kr * y2) - \
-                    4.0 * (kr + kx) * (kr + ky) * x2 * y2
-                folded = (fx <= 0) | (fy <= 0) | (det <= 0)
+                j11, j12, j21, j22 = self._jacobian(x, y, fx, fy)
+                folded = (fx <= 0) | (fy <= 0) | (j11 * j22 - j12 * j21 <= 0)
                 if np.any(folded):
                     fold_at = a + int(np.argmax(folded))
         if not finite or np.max(errs) > INVERSE_TOL_MM:
-            raise VectorgenError("the profile's pincushion terms cannot be inverted over the "
-                                 "drawing (check k_radial, k_x, k_y)")
+            raise ProfileError("the profile's pincushion terms cannot be inverted over the "
+                               "drawing (check k_radial, k_x, k_y)")
         if fold_at >= 0:
-            raise VectorgenError("the profile's pincushion terms fold the picture: no position "
-                                 f"near the axis lands at ({fpx[fold_at]:.2f}, "
-                                 f"{fpy[fold_at]:.2f}) mm (check k_radial, k_x, k_y)")
+            raise ProfileError("the profile's pincushion terms fold the picture: no position "
+                               f"near the axis lands at ({fpx[fold_at]:.2f}, "
+                               f"{fpy[fold_at]:.2f}) mm (check k_radial, k_x, k_y)")
         if len(parts) == 1:
             x, y = parts[0]
         else:

@@ -9,13 +9,43 @@ where it came from, for error messages.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Protocol
 
 import numpy as np
 
-from .errors import VectorgenError
+from .errors import InputError
+
+__all__ = ["COORD_LIMIT", "StrokeSet", "Strokes", "check_finite", "clean", "concat",
+           "strokes_from_polylines"]
 
 # Coordinates beyond this (in mm, or SVG user units before fitting) are refused as nonsense.
 COORD_LIMIT = 1e9
+
+
+class StrokeSet(Protocol):
+    """What the engine reads from a drawing: `Strokes`, or a clipped drawing not yet packed into
+    one array (`vectorgen.clip.ClippedStrokes`).
+
+    Attributes: `count` (S), `offsets` ((S + 1,) int64), `intensity` ((S,) 0..1) and `labels`
+    (S names, for messages). `arrays()` gives each stroke's (k, 2) points (views, in order);
+    `packed()` the drawing as one `Strokes` (consecutive duplicate points dropped);
+    `packing_drops_points()` whether packing would drop any point; `end_points()` each
+    stroke's first and last point ((S, 2) each)."""
+
+    offsets: np.ndarray
+    intensity: np.ndarray
+    labels: list
+
+    @property
+    def count(self) -> int: ...
+
+    def arrays(self) -> list: ...
+
+    def packed(self) -> "Strokes": ...
+
+    def packing_drops_points(self) -> bool: ...
+
+    def end_points(self) -> tuple[np.ndarray, np.ndarray]: ...
 
 
 @dataclass
@@ -35,6 +65,23 @@ class Strokes:
     def __iter__(self):
         for i in range(self.count):
             yield self.stroke(i)
+
+    def arrays(self) -> list:
+        """Each stroke's (k, 2) points, in order (views of `points`)."""
+        pts, o = self.points, self.offsets.tolist()
+        return [pts[a:b] for a, b in zip(o[:-1], o[1:])]
+
+    def packed(self) -> "Strokes":
+        """A Strokes is packed already."""
+        return self
+
+    def packing_drops_points(self) -> bool:
+        return False
+
+    def end_points(self) -> tuple[np.ndarray, np.ndarray]:
+        """Each stroke's first and last point, (S, 2) each."""
+        o = self.offsets
+        return self.points[o[:-1]], self.points[o[1:] - 1]
 
     def lengths(self) -> np.ndarray:
         """Arc length of every stroke, mm."""
@@ -98,11 +145,11 @@ def check_finite(strokes: Strokes, what: str = "drawing") -> None:
         p = int(np.argmax(bad))
         s = int(np.searchsorted(strokes.offsets, p, side="right") - 1)
         label = strokes.labels[s] if s < len(strokes.labels) else f"stroke {s + 1}"
-        raise VectorgenError(f"{what}: coordinate {strokes.points[p].tolist()} in {label} is not "
+        raise InputError(f"{what}: coordinate {strokes.points[p].tolist()} in {label} is not "
                              f"a finite number below {COORD_LIMIT:g}")
     inten = strokes.intensity
     if inten.size and not (0.0 <= inten.min() and inten.max() <= 1.0):     # NaN fails too
-        raise VectorgenError(f"{what}: stroke intensity must be between 0 and 1")
+        raise InputError(f"{what}: stroke intensity must be between 0 and 1")
 
 
 def clean(strokes: Strokes) -> Strokes:

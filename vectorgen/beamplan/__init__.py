@@ -1,0 +1,200 @@
+"""Beam plan: where the spot is at every sample of one frame, and whether it is lit.
+
+`plan_frame` reads as the pipeline, one job per module:
+
+* `ordering`: in what order and which way round the strokes are drawn (a strategy by name:
+  ``"greedy"`` nearest entry point, ``"input"`` as given);
+* `layout`: strokes on one global arc-length axis, cut at their sharp corners into pieces, and
+  the frame's samples as blocks on that axis (every stroke resampled by one `numpy.interp`);
+* `dwell`: dwells at stroke ends, sharp corners and dots;
+* `jumps`: the blanked jump between strokes and the settle after it (the jump model);
+* `budget`: the steps of each piece, free-running at the writing speed or shared out for an
+  exact-N frame;
+* `plan`: the result, `Plan`, which works out the spot position of any span on demand.
+
+The frame ends with the jump back to its first stroke, so frames repeat seamlessly.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..errors import InputError
+from ..strokes import Strokes
+from .budget import apportion, piece_steps
+from .dwell import dwells, turn_deg
+from .jumps import StraightJumps
+from .layout import CHUNK, GAP, Layout, arc_axis
+from .ordering import ORDERINGS, greedy_order, input_order, register_ordering
+from .plan import Plan
+from .timing import Timing
+
+__all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "Plan", "StraightJumps", "Timing", "apportion",
+           "greedy_order", "input_order", "plan_frame", "register_ordering",
+           "turn_deg", "CHUNK", "GAP"]
+
+MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
+
+
+def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
+               ordering: str = "greedy") -> Plan:
+    """The beam plan for one frame.
+
+    Parameters
+    ----------
+    strokes : StrokeSet
+        The drawing in mm, already clipped to the screen (`Strokes` or a clipped drawing).
+    timing : Timing
+        Beam timing in samples.
+    target_samples : int, optional
+        Fit the frame into exactly this many samples (None: free-running at the writing speed).
+    ordering : str
+        Name of the ordering strategy in `ORDERINGS` (``"greedy"``, ``"input"``, ...).
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    InputError
+        Nothing to draw, a frame too short for the drawing, or a frame too long.
+
+    Examples
+    --------
+    >>> from vectorgen.profile import Beam
+    >>> from vectorgen.strokes import strokes_from_polylines
+    >>> line = strokes_from_polylines([[(0.0, 0.0), (10.0, 0.0)]])
+    >>> plan = plan_frame(line, Timing.from_beam(Beam(), 48000))
+    >>> plan.samples, plan.drawn_length_mm, plan.blanked_moves
+    (32, 10.0, 1)
+    """
+    if strokes.count == 0:
+        raise InputError("nothing to draw: the drawing is empty (or wholly off the screen)")
+    strategy = ORDERINGS[ordering]
+    jumps = timing.jumps
+    px, py, offs, stroke_intensity, drawn = _ordered(strokes, strategy, jumps)
+    S = len(offs) - 1
+    first, last = offs[:-1], offs[1:] - 1
+
+    is_last = np.zeros(len(px), dtype=bool)
+    is_last[last] = True
+    s, sharp = arc_axis(px, py, is_last, np.cos(np.radians(timing.corner_angle_deg)))
+    sharp[first] = False
+    sharp[last] = False
+    lengths = s[last] - s[first]
+
+    # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
+    # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
+    boundary = sharp.copy()
+    boundary[first] = True
+    boundary[last] = True
+    bidx = np.flatnonzero(boundary)
+    a, b = bidx[:-1], bidx[1:]
+    keep = ~is_last[a]
+    a, b = a[keep], b[keep]
+    piece_stroke = np.searchsorted(offs, a, side="right") - 1
+    piece_len = s[b] - s[a]
+    start_rep, piece_rep, closed_sharp = dwells(px, py, first, last, lengths, piece_stroke,
+                                                is_last[b], timing)
+
+    # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).
+    nxt = np.roll(np.arange(S), -1)
+    jump_from = np.column_stack([px[last], py[last]])
+    jump_to = np.column_stack([px[first[nxt]], py[first[nxt]]])
+    jump_len = np.hypot(*(jump_to - jump_from).T)
+    move = jumps.move_samples(jump_len)
+    settles = jumps.settle_samples(move)
+
+    fixed = int(start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
+    piece_n, start_rep = piece_steps(piece_len, timing.spacing_mm, target_samples, fixed,
+                                     start_rep)
+    n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
+    if n_total > MAX_FRAME_SAMPLES:
+        raise InputError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f}"
+                         f" s): raise the writing speed or draw less", parameter="speed")
+
+    layout, lit, runs = _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke,
+                                start_rep, piece_rep, move, settles, jump_from, jump_to, jumps)
+    return Plan(layout, lit, runs, drawn, stroke_intensity,
+                drawn_length_mm=float(lengths.sum()),
+                moving_samples=int(piece_n.sum()),
+                blanked_moves=int((move > 0).sum()),
+                blanked_length_mm=float(jump_len.sum()),
+                corners=int(sharp.sum() + closed_sharp.sum()))
+
+
+def _ordered(strokes, strategy, jumps):
+    """The vertices x, y (contiguous), offsets and intensities of the strokes in drawing order,
+    and the drawn strokes (a Strokes, or a function that makes it only if asked for)."""
+    if strokes.packing_drops_points() or strokes.count <= 2 or strategy is input_order:
+        strokes = strokes.packed()
+    order, flip = strategy(*strokes.end_points(), jumps.cost)
+    if strategy is input_order:
+        pts = strokes.points
+        return (np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
+                strokes.offsets, strokes.intensity, strokes)
+    # x, y as contiguous 1-D arrays (whole-array arithmetic on them is several times faster
+    # than on the columns of a (P, 2) array) in the new order; the reordered Strokes are made
+    # from them only if asked for
+    px, py = _reordered_xy(strokes.arrays(), order, flip)
+    offs = _reordered_offsets(strokes.offsets, order)
+    intensity = strokes.intensity[order]
+    labels = strokes.labels
+
+    def drawn():
+        return Strokes(np.column_stack([px, py]), offs, intensity, [labels[i] for i in order])
+    return px, py, offs, intensity, drawn
+
+
+def _reordered_offsets(offsets: np.ndarray, order: np.ndarray) -> np.ndarray:
+    counts = np.diff(offsets)[order]
+    return np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+
+
+def _reordered_xy(arrays: list, order: np.ndarray, flip: np.ndarray):
+    """x and y of the strokes' points (`arrays`: each stroke's (k, 2) points) in the new order,
+    reversed strokes flipped, as two contiguous arrays."""
+    xs, ys = [], []
+    for i, f in zip(order.tolist(), flip.tolist()):
+        p = arrays[i][::-1] if f else arrays[i]
+        xs.append(p[:, 0])
+        ys.append(p[:, 1])
+    return np.concatenate(xs), np.concatenate(ys)
+
+
+def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_rep, piece_rep,
+            move, settles, jump_from, jump_to, jumps):
+    """The frame's sample blocks in drawing order (per stroke a start block, its pieces, then
+    its blanked jump) as a Layout, with the lit flags and the lit/blanked run lengths."""
+    S = len(first)
+    blank_size = move + settles
+    blk_key = np.concatenate([2 * first, 2 * a + 1, 2 * last + 1])
+    blk_base = np.concatenate([s[first], s[a], s[last]])
+    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1), np.zeros(S)])
+    blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n, np.zeros(S, dtype=np.int64)])
+    blk_rep = np.concatenate([start_rep, piece_rep, blank_size]).astype(np.int64)
+    blk_stroke = np.concatenate([np.arange(S), piece_stroke, np.arange(S)])
+    blk_lit = np.concatenate([np.ones(S + len(a), dtype=bool), np.zeros(S, dtype=bool)])
+    o = np.argsort(blk_key, kind="stable")
+    blk_base, blk_step, blk_move, blk_rep, blk_stroke, blk_lit = (
+        blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o], blk_lit[o])
+    blk_size = blk_move + blk_rep
+    blk_end = np.cumsum(blk_size)
+    lit_count = np.bincount(blk_stroke[blk_lit], weights=blk_size[blk_lit],
+                            minlength=S).astype(np.int64)
+    runs = np.column_stack([lit_count, blank_size]).ravel()
+    lit = np.repeat(np.tile(np.array([True, False]), S), runs)
+
+    # Blanked samples: the jump's move, then the settle at the destination.
+    blank_total = int(blank_size.sum())
+    kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
+    frac = jumps.fractions(kb, np.repeat(move, blank_size))
+    at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
+    blank_x = np.repeat(jump_from[:, 0], blank_size) + \
+        np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
+    blank_y = np.repeat(jump_from[:, 1], blank_size) + \
+        np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
+    layout = Layout(s, px, py, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
+                    at, blank_x, blank_y)
+    return layout, lit, runs

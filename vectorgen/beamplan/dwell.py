@@ -1,0 +1,55 @@
+"""Dwell rules: how long the spot holds still at stroke ends, sharp corners and dots.
+
+* An open stroke dwells `end_dwell` samples at its start and at its end, so its ends come out as
+  bright as its middle and square.
+* A sharp corner (a turn sharper than `corner_angle_deg`) dwells `corner_dwell` samples.
+* A closed stroke has no free ends: its start is lit once, and it dwells again at the end only
+  when the closure itself is a sharp corner (a rectangle's corner).
+* A dot (a one-point stroke) dwells `dot_dwell` samples.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["turn_deg", "dwells"]
+
+
+def turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:
+    """Turning angle in degrees between incoming and outgoing direction vectors (m, 2).
+
+    Examples
+    --------
+    >>> turn_deg(np.array([[1.0, 0.0]]), np.array([[0.0, 1.0]])).round(6).tolist()
+    [90.0]
+    """
+    cosang = np.einsum("ij,ij->i", d_in, d_out) / (np.hypot(*d_in.T) * np.hypot(*d_out.T))
+    return np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0)))
+
+
+def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing):
+    """Dwell samples of a frame's strokes.
+
+    Returns
+    -------
+    start_rep : (S,) int
+        Dwell at each stroke's start (a dot's whole dwell).
+    piece_rep : (P,) int
+        Dwell at the end of each piece: a corner dwell, or the stroke's end dwell.
+    closed_sharp : (S,) bool
+        Closed strokes whose closure is a sharp corner.
+    """
+    S = len(first)
+    is_dot = lengths == 0
+    closed = ~is_dot & (px[first] == px[last]) & (py[first] == py[last])
+    closed_sharp = np.zeros(S, dtype=bool)
+    cs = np.flatnonzero(closed & (last - first >= 2))
+    if cs.size:
+        def at(i):
+            return np.column_stack([px[i], py[i]])
+        closed_sharp[cs] = turn_deg(at(last[cs]) - at(last[cs] - 1),
+                                    at(first[cs] + 1) - at(first[cs])) > timing.corner_angle_deg
+    end_rep = np.where(closed, np.where(closed_sharp, timing.corner_dwell, 0), timing.end_dwell)
+    piece_rep = np.where(piece_last, end_rep[piece_stroke], timing.corner_dwell)
+    start_rep = np.where(is_dot, timing.dot_dwell, np.where(closed, 1, timing.end_dwell))
+    return start_rep.astype(np.int64), piece_rep.astype(np.int64), closed_sharp

@@ -1,0 +1,162 @@
+"""Clipping: strokes cut at the edge of the usable area.
+
+Strokes wholly inside pass untouched (one min/max decides for most drawings); strokes that cross
+the edge are clipped segment by segment with shapely, all segments in one vectorised call.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .strokes import Strokes, clean
+
+__all__ = ["ClippedStrokes", "clip_parts", "clip_to_screen"]
+
+
+def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
+    """Cut every stroke at the edge of the usable area. Strokes wholly inside pass untouched
+    (checked with numpy); strokes that cross the edge are clipped segment by segment with
+    shapely, all segments in one vectorised call, and the kept parts joined back into runs in
+    drawing order. (Intersecting a whole stroke as one LineString is set arithmetic: it merges
+    a stretch drawn twice into one and nodes the stroke where it crosses itself, and GEOS can
+    return slivers outside the area for spiky strokes.) Returns the clipped drawing and the
+    number of strokes that were cut or dropped."""
+    out, n_cut = clip_parts(strokes, screen)
+    return (out.packed() if isinstance(out, ClippedStrokes) else out), n_cut
+
+
+def clip_parts(strokes: Strokes, screen):
+    """clip_to_screen, with the clipped drawing (when anything was cut) as a ClippedStrokes:
+    its strokes are views of the drawing's points and the cut pieces, not yet packed into one
+    array (the beam planner reads them in its own order without that copy)."""
+    if not strokes.count:
+        return strokes, 0
+    if screen.contains_box(strokes.points):
+        return strokes, 0                   # the usual case: one min/max, no per-stroke work
+    inside = screen.contains(strokes.points)
+    all_in = np.logical_and.reduceat(inside, strokes.offsets[:-1])
+    if all_in.all():
+        return strokes, 0
+    import shapely
+
+    area = screen.polygon()
+    cut = np.flatnonzero(~all_in)
+    # The crossing strokes' segments, each closed stroke rotated to start at a vertex outside
+    # the area, so that no kept run wraps round its start.
+    seg_a, seg_b, seg_sid = [], [], []
+    for i in cut:
+        pts = strokes.stroke(i)
+        if len(pts) < 2:
+            continue                                    # a dot off the screen
+        if len(pts) > 2 and np.array_equal(pts[0], pts[-1]):
+            k = int(np.argmin(inside[strokes.offsets[i]:strokes.offsets[i + 1] - 1]))
+            ring = pts[:-1]
+            pts = np.concatenate([ring[k:], ring[:k], ring[k:k + 1]])
+        seg_a.append(pts[:-1])
+        seg_b.append(pts[1:])
+        seg_sid.append(np.full(len(pts) - 1, i))
+    pieces = []                         # (stroke index, points) of the cut strokes' kept runs
+    if seg_a:
+        p0, p1, sid = np.concatenate(seg_a), np.concatenate(seg_b), np.concatenate(seg_sid)
+        a, b = p0.copy(), p1.copy()
+        keep = screen.contains(p0) & screen.contains(p1)   # convex area: wholly in
+        todo = np.flatnonzero(~keep)
+        if todo.size:
+            parts = shapely.intersection(shapely.linestrings(np.stack([p0[todo], p1[todo]], 1)),
+                                         area)
+            ok = (shapely.get_type_id(parts) == 1) & (shapely.length(parts) > 0)
+            first = shapely.get_coordinates(shapely.get_point(parts[ok], 0))
+            last = shapely.get_coordinates(shapely.get_point(parts[ok], -1))
+            t = todo[ok]
+            backwards = np.einsum("ij,ij->i", last - first, p1[t] - p0[t]) < 0
+            a[t] = np.where(backwards[:, None], last, first)
+            b[t] = np.where(backwards[:, None], first, last)
+            keep[t] = True
+        # A run starts at a kept segment that begins a stroke, follows a dropped segment, or
+        # does not start where the previous kept part ended (it re-enters the area).
+        prev_keep = np.concatenate([[False], keep[:-1]])
+        new_stroke = np.concatenate([[True], sid[1:] != sid[:-1]])
+        joined = np.concatenate([[False], np.all(a[1:] == b[:-1], axis=1)])
+        start = keep & (new_stroke | ~prev_keep | ~joined)
+        kept = np.flatnonzero(keep)
+        for rows in (np.split(kept, np.flatnonzero(start[kept])[1:]) if kept.size else []):
+            pieces.append((int(sid[rows[0]]), screen.clamp(np.vstack([a[rows[:1]], b[rows]]))))
+    # The result in drawing order: every stretch of untouched strokes is one slice of the
+    # packed points, with the cut strokes' runs (in their own order) between the stretches.
+    offs = strokes.offsets
+    chunks, counts, sids = [], [], []
+    done = 0                            # strokes before this index are laid out
+    j = 0                               # next piece
+    for i in [*cut.tolist(), strokes.count]:
+        if i > done:                    # untouched strokes done .. i - 1
+            chunks.append((strokes.points[offs[done]:offs[i]], i - done))
+            counts.append(np.diff(offs[done:i + 1]))
+            sids.append(np.arange(done, i))
+        while j < len(pieces) and pieces[j][0] == i:
+            chunks.append((pieces[j][1], 1))
+            counts.append([len(pieces[j][1])])
+            sids.append([i])
+            j += 1
+        done = i + 1
+    if not chunks:
+        return Strokes.empty(), int((~all_in).sum())
+    sids = np.concatenate(sids).astype(np.int64)
+    return ClippedStrokes(strokes, chunks, counts, sids), int((~all_in).sum())
+
+
+class ClippedStrokes:
+    """A clipped drawing before packing: the strokes in order, as stretches of untouched
+    strokes (views of the source drawing's points) and cut pieces. `packed()` is the Strokes
+    clip_to_screen returns (one points array, consecutive duplicate points dropped)."""
+
+    def __init__(self, source: Strokes, chunks: list, counts: list, sids: np.ndarray):
+        self._chunks = chunks           # [(points (k, 2), strokes in it)] in order
+        counts = np.concatenate(counts).astype(np.int64)
+        self.offsets = np.concatenate([[0], np.cumsum(counts)])
+        self.intensity = source.intensity[sids].astype(float)
+        self.labels = [source.labels[i] for i in sids.tolist()]
+        self._packed = None
+
+    @property
+    def count(self) -> int:
+        return len(self.offsets) - 1
+
+    def packed(self) -> Strokes:
+        if self._packed is None:
+            pts = np.concatenate([c for c, _n in self._chunks]).astype(float, copy=False)
+            self._packed = clean(Strokes(pts, self.offsets, self.intensity, self.labels))
+        return self._packed
+
+    @property
+    def points(self) -> np.ndarray:
+        return self.packed().points
+
+    def arrays(self) -> list:
+        """Each stroke's (k, 2) points, in order (views)."""
+        out = []
+        offs = self.offsets.tolist()
+        at = 0                          # stroke index
+        for chunk, n in self._chunks:
+            start = offs[at]
+            for i in range(at, at + n):
+                out.append(chunk[offs[i] - start:offs[i + 1] - start])
+            at += n
+        return out
+
+    def end_points(self) -> tuple[np.ndarray, np.ndarray]:
+        """Each stroke's first and last point, (S, 2) each."""
+        arrays = self.arrays()
+        return np.array([a[0] for a in arrays]), np.array([a[-1] for a in arrays])
+
+    def packing_drops_points(self) -> bool:
+        """Whether a stroke repeats a point consecutively (packing would drop it)."""
+        offs = self.offsets
+        at = 0
+        for chunk, n in self._chunks:
+            if len(chunk) > 1:
+                same = (chunk[1:, 0] == chunk[:-1, 0]) & (chunk[1:, 1] == chunk[:-1, 1])
+                same[offs[at + 1:at + n] - offs[at] - 1] = False    # across strokes
+                if same.any():
+                    return True
+            at += n
+        return False
