@@ -39,7 +39,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import VectorgenError
+from .channels import ChannelMap
+from .errors import DeviceError, InputError
+
+__all__ = ["Device", "Player", "Producer", "check_device", "find_device", "output_devices",
+           "park_levels", "ramp", "ramp_weights", "sounddevice"]
 
 PORTAUDIO_MISSING = ("PortAudio library not found: install the system package libportaudio2 "
                      "(Debian/Ubuntu: apt-get install libportaudio2)")
@@ -57,7 +61,7 @@ def sounddevice():
     try:
         import sounddevice as sd
     except OSError:
-        raise VectorgenError(PORTAUDIO_MISSING) from None
+        raise DeviceError(PORTAUDIO_MISSING) from None
     return sd
 
 
@@ -103,11 +107,11 @@ def find_device(spec: str | int | None) -> Device:
     sd = sounddevice()
     devices = output_devices()
     if not devices:
-        raise VectorgenError(f"no audio output device found (PortAudio sees none): {SEE_DEVICES}")
+        raise DeviceError(f"no audio output device found (PortAudio sees none): {SEE_DEVICES}")
     if spec is None:
         chosen = [d for d in devices if d.default]
         if not chosen:
-            raise VectorgenError(f"there is no default output device: choose one with --device "
+            raise DeviceError(f"there is no default output device: choose one with --device "
                                  f"({SEE_DEVICES})")
         return chosen[0]
     text = str(spec).strip()
@@ -116,17 +120,17 @@ def find_device(spec: str | int | None) -> Device:
         for d in devices:
             if d.index == index:
                 return d
-        raise VectorgenError(f"there is no output device number {index}: {SEE_DEVICES}")
+        raise DeviceError(f"there is no output device number {index}: {SEE_DEVICES}")
     try:
         index = sd.query_devices(text, "output")["index"]
     except ValueError as exc:
         if str(exc).startswith("Multiple"):
             names = [f"{d.index} '{d.name}'" for d in devices if _matches(d, text)]
-            raise VectorgenError(f"several output devices match '{text}' ({', '.join(names)}): "
+            raise DeviceError(f"several output devices match '{text}' ({', '.join(names)}): "
                                  f"give more of the name or the number ({SEE_DEVICES})") from None
-        raise VectorgenError(f"no output device matches '{text}': {SEE_DEVICES}") from None
+        raise DeviceError(f"no output device matches '{text}': {SEE_DEVICES}") from None
     except sd.PortAudioError as exc:
-        raise VectorgenError(f"cannot query device '{text}': {exc}: {SEE_DEVICES}") from None
+        raise DeviceError(f"cannot query device '{text}': {exc}: {SEE_DEVICES}") from None
     return next(d for d in devices if d.index == index)
 
 
@@ -144,7 +148,7 @@ def check_device(device: Device, channels: int, rate: int) -> None:
     """A one-line error unless the device can play `channels` float32 channels at `rate`."""
     sd = sounddevice()
     if channels > device.channels:
-        raise VectorgenError(f"{device.describe()} has {device.channels} output channel(s); "
+        raise DeviceError(f"{device.describe()} has {device.channels} output channel(s); "
                              f"the signal needs {channels} (use --channels 2, or another device)")
     try:
         sd.check_output_settings(device=device.index, channels=channels, dtype="float32",
@@ -152,7 +156,7 @@ def check_device(device: Device, channels: int, rate: int) -> None:
     except (sd.PortAudioError, ValueError) as exc:
         hint = "" if int(device.rate) == rate else (f"; its default rate is {device.rate:g} Hz, "
                                                     f"try --rate {device.rate:g}")
-        raise VectorgenError(f"{device.describe()} cannot play {channels} channels at {rate} Hz "
+        raise DeviceError(f"{device.describe()} cannot play {channels} channels at {rate} Hz "
                              f"({_one_line(exc)}){hint}") from None
 
 
@@ -165,13 +169,8 @@ def _one_line(exc) -> str:
 def park_levels(output, channels: int, drive=PARK_DRIVE) -> tuple[np.ndarray, np.ndarray]:
     """Channel values of the park position (drive `drive`, beam blanked) and a mask of the
     Z channels, both (channels,)."""
-    from types import SimpleNamespace
-
-    from .signal import to_channels
-
-    plan = SimpleNamespace(lit=np.zeros(1, dtype=bool), intensity=np.zeros(1))
-    sig, names = to_channels(np.asarray([drive], dtype=float), plan, output, channels)
-    return sig[0].copy(), np.array([n == "z" for n in names])
+    cmap = ChannelMap(output, channels)
+    return cmap.park(drive), cmap.zmask
 
 
 def ramp_weights(n: int) -> np.ndarray:
@@ -197,8 +196,9 @@ def ramp(start: np.ndarray, end: np.ndarray, n: int, zmask: np.ndarray,
 @dataclass
 class Pending:
     due: int                # frame samples from the start of the first frame
-    signal: np.ndarray      # (n, ch) float32
+    signal: np.ndarray      # (n, ch) float32: the frame as it loops
     index: int              # scene update number
+    first: np.ndarray | None = None     # its first pass when it follows update index - 1
 
 
 _START, _PLAY, _STOP, _HOLD, _DONE = range(5)
@@ -213,7 +213,7 @@ class Player:
                  hold_ms: float = PARK_HOLD_MS):
         first = np.ascontiguousarray(first, dtype=np.float32)
         if first.ndim != 2 or len(first) == 0:
-            raise VectorgenError("nothing to play: the first frame is empty")
+            raise InputError("nothing to play: the first frame is empty")
         self.rate = int(rate)
         self.channels = first.shape[1]
         self.park = np.asarray(park, dtype=np.float32)
@@ -234,6 +234,7 @@ class Player:
         self._stop_flag = False
         self._late_flag: int | None = None
         self._shown_due = 0
+        self._steady: np.ndarray | None = None   # the loop to go on with after a first pass
         # counters (each written by one thread only)
         self.position = 0               # frame samples played
         self.samples_out = 0            # every sample written, ramps included
@@ -252,12 +253,21 @@ class Player:
         self.stream = None
 
     # -- producer side -----------------------------------------------------------------------
-    def submit(self, due: int, signal: np.ndarray, index: int) -> None:
+    def submit(self, due: int, signal: np.ndarray, index: int,
+               first: np.ndarray | None = None) -> None:
+        """Queue update `index`, due at frame sample `due`. `first` is what to play for its
+        first pass when it follows update index - 1 directly (a stage's frame-switch
+        output, the same length as `signal`); otherwise `signal` plays from the start."""
         sig = np.ascontiguousarray(signal, dtype=np.float32)
         if sig.ndim != 2 or sig.shape[1] != self.channels or len(sig) == 0:
-            raise VectorgenError(f"frame {index} has shape {sig.shape}; expected (n, "
-                                 f"{self.channels})")
-        self.pending.append(Pending(int(due), sig, int(index)))
+            raise InputError(f"frame {index} has shape {sig.shape}; expected (n, "
+                             f"{self.channels})")
+        if first is not None:
+            first = np.ascontiguousarray(first, dtype=np.float32)
+            if first.shape != sig.shape:
+                raise InputError(f"frame {index}: its first pass has shape {first.shape}, the "
+                                 f"frame {sig.shape}")
+        self.pending.append(Pending(int(due), sig, int(index), first))
 
     def request_stop(self, reason: str) -> None:
         if self.stop_reason is None:
@@ -283,10 +293,15 @@ class Player:
                 self.superseded += 1
             take = q.popleft()
         if take is not None:
-            self._cur = take.signal
+            if take.first is not None and self.shown == take.index - 1:
+                self._cur, self._steady = take.first, take.signal
+            else:
+                self._cur, self._steady = take.signal, None
             self.shown = take.index
             self._shown_due = take.due
             self.switches += 1
+        elif self._steady is not None:      # the first pass is over: loop the steady frame
+            self._cur, self._steady = self._steady, None
         aw = self.awaiting
         if aw is not None and self._shown_due < aw <= P and aw != self._late_flag:
             self.late_callback += 1
@@ -376,7 +391,7 @@ class Player:
             self.stream.start()
         except sd.PortAudioError as exc:
             self.close()
-            raise VectorgenError(f"cannot start the audio stream: {_one_line(exc)}") from None
+            raise DeviceError(f"cannot start the audio stream: {_one_line(exc)}") from None
 
     @property
     def latency(self) -> float:
@@ -407,7 +422,8 @@ class Player:
 class Producer(threading.Thread):
     """Renders scene updates 1, 2, ... ahead of time and submits them to the player.
 
-    `render(k) -> (n, ch) float32` makes update k; `schedule.due(k)` gives its due sample.
+    `render(k) -> (signal, first)` makes update k: its (n, ch) float32 loop and what to play
+    for its first pass after update k - 1 (or None); `schedule.due(k)` gives its due sample.
     An update is rendered once it is due within LOOKAHEAD_S and the queue has room. If the
     producer falls so far behind that the next update is due too, the hopeless one is dropped
     (and counted late if a frame boundary passed after its due sample)."""
@@ -436,7 +452,8 @@ class Producer(threading.Thread):
             due = sched.due(self.k)
             if due > limit or (p.stop_after is not None and due >= p.stop_after):
                 return
-            p.submit(due, self.render(self.k), self.k)
+            signal, first = self.render(self.k)
+            p.submit(due, signal, self.k, first)
             self.rendered += 1
             self.k += 1
 
@@ -469,35 +486,14 @@ class Producer(threading.Thread):
                     k += 1
                     due = sched.due(k)
                     p.awaiting = due
-                signal = self.render(k)
+                signal, first = self.render(k)
                 self.rendered += 1
                 self.k = k + 1
                 if sched.due(k + 1) <= p.position:      # went stale while being made
                     if p.last_boundary >= due and p._late_flag != due:
                         p.late_producer += 1
                     continue
-                p.submit(due, signal, k)
+                p.submit(due, signal, k, first)
         except BaseException as exc:
             self.error = exc
             p.request_stop("error")
-
-
-def status_line(player: Player, device: Device, elapsed: float) -> str:
-    s = player.stats()
-    return (f"playing {elapsed:7.1f} s on '{device.name}': frames {s['frames']}, updates "
-            f"{s['updates']}, late frames {s['late']}, underruns {s['underruns']}")
-
-
-def wait_interval(seconds: float | None) -> float:
-    return 0.25 if seconds is None else min(0.25, max(0.02, seconds / 10))
-
-
-def fmt_duration(seconds: float) -> str:
-    if seconds < 120:
-        return f"{seconds:.3f} s"
-    m, s = divmod(seconds, 60)
-    return f"{int(m)} min {s:.1f} s"
-
-
-__all__ = ["Device", "Player", "Producer", "check_device", "find_device", "output_devices",
-           "park_levels", "ramp", "ramp_weights", "sounddevice"]

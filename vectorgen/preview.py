@@ -1,7 +1,8 @@
 """Phosphor preview: a picture of what the tube will show, made from the actual output samples.
 
-The channel signal is mapped back to drive (channel order and polarity undone) and through the
-profile's forward deflection model to millimetres on the face. Brightness is proportional to
+The channel signal is mapped back to drive through the channel map (order and polarity undone),
+through the stage chain's model of the hardware after the jack (`StageChain.hardware`), and
+through the profile's forward deflection model to millimetres on the face. Brightness is proportional to
 the time the spot spends on each pixel (samples are joined by straight sweeps, as the beam
 moves between them), spread by a Gaussian spot; blanked samples are dark; the usable area is
 outlined faintly.
@@ -11,18 +12,43 @@ from __future__ import annotations
 
 import numpy as np
 
+from .channels import ChannelMap
 from .deflection import DeflectionModel
-from .signal import from_channels
+from .files import atomic_write
+
+__all__ = ["phosphor_image", "write_png", "write_signal_plot"]
 
 MAX_SWEEP_STEPS = 16
 
 
 def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray | None = None,
-                   width_px: int = 800, spot_mm: float = 0.35, margin: float = 0.06) -> np.ndarray:
-    """An (h, w, 3) uint8 RGB image. `lit` marks beam-on samples where there is no Z channel."""
+                   width_px: int = 800, spot_mm: float = 0.35, margin: float = 0.06,
+                   chain=None, rate: int | None = None) -> np.ndarray:
+    """A picture of what the tube shows for a looping frame of channel samples.
+
+    Parameters
+    ----------
+    signal : (n, channels) array
+        The final samples, as written or played.
+    profile : Profile
+    channels : int
+    lit : (n,) bool, optional
+        Beam-on samples, where there is no Z channel.
+    width_px, spot_mm, margin
+        Picture width, spot size on the phosphor, margin around the usable area (fraction).
+    chain : StageChain, optional
+        The stages the samples went through: the preview runs the samples through their model
+        of the hardware (needs `rate`).
+
+    Returns
+    -------
+    (h, w, 3) uint8 RGB array
+    """
     from scipy.ndimage import gaussian_filter
 
-    drive, z = from_channels(signal, profile.output, channels)
+    drive, z = ChannelMap(profile.output, channels).from_channels(signal)
+    if chain:
+        drive = chain.hardware(drive, rate)
     weight = z if z is not None else (np.ones(len(drive)) if lit is None else lit.astype(float))
     pts = DeflectionModel.from_profile(profile).drive_to_mm(drive)
 
@@ -63,8 +89,6 @@ def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray |
 def write_png(path: str, rgb: np.ndarray) -> None:
     from PIL import Image
 
-    from .sinks import atomic_write
-
     atomic_write(path, lambda fh: Image.fromarray(rgb).save(fh, format="PNG"))
 
 
@@ -74,8 +98,6 @@ def write_signal_plot(path: str, signal: np.ndarray, names: list, rate: int) -> 
 
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
-
-    from .sinks import atomic_write
 
     t_ms = np.arange(len(signal)) / rate * 1e3
     fig = Figure(figsize=(9, 1.6 * len(names) + 0.6), dpi=100)

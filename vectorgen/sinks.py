@@ -1,63 +1,41 @@
-"""Sinks: signal arrays to files. Every file is written to a temporary file beside the target
-and renamed into place, so a failure never leaves a half-written file behind.
+"""Sinks: signal arrays to files. Every file is written through `files.atomic_write` (a
+temporary file beside the target, renamed into place), so a failure never leaves a half-written
+file behind.
 
-Formats by extension:
+Formats by extension, each a writer in `SINKS`:
   .wav        scipy.io.wavfile, float32 (default) or 16-bit PCM
   .csv        one column per channel, a header row naming the signals
   .raw .bin   little-endian signed 16-bit integers, channels interleaved (waveform generators)
+
+A writer is ``writer(fh, signal, rate, names, pcm16)`` writing to a binary file object; a new
+format is one writer function and one `register_sink` line.
 """
 
 from __future__ import annotations
 
 import io
 import os
-import tempfile
 
 import numpy as np
 
-from .errors import VectorgenError
+from .errors import InputError
+from .files import atomic_write, check_output_path
+from .registry import Registry
 
-SIGNAL_EXTENSIONS = (".wav", ".csv", ".raw", ".bin")
+__all__ = ["SINKS", "register_sink", "signal_extensions", "write_signal", "read_signal",
+           "to_int16"]
 
-
-def check_output_path(path: str, extensions: tuple[str, ...] | None = None) -> str:
-    """Fail early (before any work) if `path` cannot be written; returns its extension."""
-    path = os.fspath(path)
-    ext = os.path.splitext(path)[1].lower()
-    if extensions is not None and ext not in extensions:
-        raise VectorgenError(f"cannot tell the format of '{path}': use one of "
-                             + ", ".join(extensions))
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise VectorgenError(f"output folder does not exist: {os.path.dirname(path) or '.'}")
-    if os.path.isdir(path):
-        raise VectorgenError(f"output path is a folder: {path}")
-    if not os.access(folder, os.W_OK):
-        raise VectorgenError(f"output folder is not writable: {folder}")
-    return ext
+SINKS = Registry("signal file format")
 
 
-def atomic_write_bytes(path: str, data: bytes) -> None:
-    atomic_write(path, lambda fh: fh.write(data))
+def register_sink(extension: str, writer) -> None:
+    """Make a signal file format available by its extension (with the dot, e.g. ".wav")."""
+    SINKS.register(extension.lower(), writer)
 
 
-def atomic_write(path: str, writer) -> None:
-    """Call writer(binary_file) on a temporary file, then rename it onto `path`."""
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(dir=folder, prefix=".vectorgen-", suffix=".part")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            writer(fh)
-        os.replace(tmp, path)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise VectorgenError(f"cannot write {path}: {exc.strerror or exc}") from None
-        raise
+def signal_extensions() -> tuple[str, ...]:
+    """The extensions of every registered format, e.g. ('.wav', '.csv', '.raw', '.bin')."""
+    return tuple(SINKS.names())
 
 
 def to_int16(signal: np.ndarray) -> np.ndarray:
@@ -65,32 +43,47 @@ def to_int16(signal: np.ndarray) -> np.ndarray:
     return np.round(np.clip(signal, -1.0, 1.0) * 32767.0).astype("<i2")
 
 
-def write_signal(path: str, signal: np.ndarray, rate: int, names: list[str],
+def write_signal(path, signal: np.ndarray, rate: int, names: list[str],
                  pcm16: bool = False) -> None:
-    """Write an (n, channels) float array (full scale +-1.0) in the format the extension names."""
-    ext = check_output_path(path, SIGNAL_EXTENSIONS)
+    """Write an (n, channels) float array (full scale +-1.0) in the format the extension names.
+
+    Raises
+    ------
+    InputError
+        An extension no sink is registered for, or an output path that cannot be written.
+    """
+    ext = check_output_path(path, signal_extensions())
+    writer = SINKS[ext]
     signal = np.asarray(signal)
-    if ext == ".wav":
-        from scipy.io import wavfile
+    atomic_write(path, lambda fh: writer(fh, signal, int(rate), list(names), pcm16))
 
-        data = to_int16(signal) if pcm16 else signal.astype(np.float32, copy=False)
 
-        def writer(fh):
-            wavfile.write(fh, int(rate), data)      # straight into the temporary file
-    elif ext == ".csv":
-        def writer(fh):
-            text = io.StringIO()
-            text.write(",".join(names) + "\n")
-            if pcm16:
-                np.savetxt(text, to_int16(signal), fmt="%d", delimiter=",")
-            else:
-                # %.9g keeps every bit of a float32 sample.
-                np.savetxt(text, signal.astype(np.float32), fmt="%.9g", delimiter=",")
-            fh.write(text.getvalue().encode("ascii"))
-    else:  # .raw / .bin
-        def writer(fh):
-            fh.write(to_int16(signal).tobytes())
-    atomic_write(path, writer)
+def _write_wav(fh, signal, rate, names, pcm16):
+    from scipy.io import wavfile
+
+    data = to_int16(signal) if pcm16 else signal.astype(np.float32, copy=False)
+    wavfile.write(fh, rate, data)      # straight into the temporary file
+
+
+def _write_csv(fh, signal, rate, names, pcm16):
+    text = io.StringIO()
+    text.write(",".join(names) + "\n")
+    if pcm16:
+        np.savetxt(text, to_int16(signal), fmt="%d", delimiter=",")
+    else:
+        # %.9g keeps every bit of a float32 sample.
+        np.savetxt(text, signal.astype(np.float32), fmt="%.9g", delimiter=",")
+    fh.write(text.getvalue().encode("ascii"))
+
+
+def _write_raw(fh, signal, rate, names, pcm16):
+    fh.write(to_int16(signal).tobytes())
+
+
+register_sink(".wav", _write_wav)
+register_sink(".csv", _write_csv)
+register_sink(".raw", _write_raw)
+register_sink(".bin", _write_raw)
 
 
 def read_signal(path: str) -> tuple[np.ndarray, int | None, list[str]]:
@@ -108,4 +101,4 @@ def read_signal(path: str) -> tuple[np.ndarray, int | None, list[str]]:
             names = fh.readline().strip().split(",")
         data = np.loadtxt(path, delimiter=",", skiprows=1, ndmin=2)
         return data, None, names
-    raise VectorgenError(f"cannot read signals from {path}")
+    raise InputError(f"cannot read signals from {path}")
