@@ -9,5 +9,5 @@
 
 The forward model and its exact inverse live in the engine (vectorgen.deflection), which never
 imports this package: rendering with a fitted profile needs only the profile. The commands are
-in vectorgen/cmd_calibrate.py.
+in vectorgen/cli/calibrate.py.
 """

@@ -4,18 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from vectorgen.errors import InputError
+
+from vectorgen.flatten import circle_points
 from vectorgen.strokes import Strokes, strokes_from_polylines
-
-
-def circle_points(radius: float, center=(0.0, 0.0), tolerance_mm: float = 0.02) -> np.ndarray:
-    """A closed polyline on a circle whose chords stay within `tolerance_mm` of it."""
-    step = 2.0 * np.arccos(max(-1.0, 1.0 - tolerance_mm / radius)) if radius > 0 else np.pi
-    # (a huge radius makes the step underflow to 0: the chord count is capped anyway)
-    n = int(np.clip(np.ceil(2 * np.pi / max(min(step, np.radians(10.0)), 2 * np.pi / 100_000)),
-                    8, 100_000))
-    t = np.linspace(0.0, 2.0 * np.pi, n + 1)
-    t[-1] = 0.0      # close exactly on the first point
-    return np.column_stack([center[0] + radius * np.cos(t), center[1] + radius * np.sin(t)])
 
 
 def circle(screen, radius: float | None = None, tolerance_mm: float = 0.02) -> Strokes:
@@ -51,15 +43,13 @@ def grid_positions(screen, step: float) -> tuple[np.ndarray, np.ndarray]:
 def grid(screen, step: float = 10.0) -> Strokes:
     """Lines every `step` mm through the centre and a dot at every crossing, all at known
     millimetre positions. On a round face the lines are cut to the circle by the engine."""
-    from vectorgen.errors import VectorgenError
-
     if not (step > 0 and np.isfinite(step)):
-        raise VectorgenError(f"grid step must be > 0 mm (got {step})")
+        raise InputError(f"grid step must be > 0 mm (got {step})")
     w, h = screen.half_extent
     nx, ny = 2 * np.floor(w / step) + 1, 2 * np.floor(h / step) + 1
     if nx * ny > MAX_GRID_DOTS:
         least = np.sqrt(4 * w * h / MAX_GRID_DOTS)
-        raise VectorgenError(f"a grid step of {step:g} mm makes {nx * ny:.3g} crossings: use a "
+        raise InputError(f"a grid step of {step:g} mm makes {nx * ny:.3g} crossings: use a "
                              f"step of at least {least:.2g} mm")
     xs, ys = grid_positions(screen, step)
     lines = [[(x, -h), (x, h)] for x in xs] + [[(-w, y), (w, y)] for y in ys]

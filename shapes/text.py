@@ -12,7 +12,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from vectorgen.errors import VectorgenError
+from vectorgen.errors import InputError
 from vectorgen.strokes import Strokes, strokes_from_polylines
 
 FONT = "futural"
@@ -35,7 +35,7 @@ def glyph(ch: str):
     """(strokes in font units with +y up and the left edge at 0, advance width)."""
     found = list(_font().glyphs_for_text(ch))
     if not found:
-        raise VectorgenError(f"no glyph for {ch!r} in the stroke font: use printable ASCII")
+        raise InputError(f"no glyph for {ch!r} in the stroke font: use printable ASCII")
     g = found[0]
     left = g.left_offset
     strokes = tuple(np.array([(x - left, -y) for x, y in s], dtype=float) for s in g.strokes)
@@ -51,13 +51,13 @@ def text_strokes(text: str, height_mm: float = 8.0, align: str = "center",
     """Strokes for `text` (lines split on newlines), cap height `height_mm`, each line aligned
     left/center/right within the block, the block centred on `center`."""
     if align not in ALIGNMENTS:
-        raise VectorgenError(f"unknown alignment {align!r}: use left, center or right")
+        raise InputError(f"unknown alignment {align!r}: use left, center or right")
     if not (np.isfinite(height_mm) and height_mm > 0):
-        raise VectorgenError(f"text height must be > 0 mm (got {height_mm})")
+        raise InputError(f"text height must be > 0 mm (got {height_mm})")
     lines = text.replace("\\n", "\n").split("\n")
     bad = sorted({c for c in text.replace("\\n", "") if c != "\n" and not (" " <= c <= "~")})
     if bad:
-        raise VectorgenError("the stroke font has printable ASCII only; cannot draw "
+        raise InputError("the stroke font has printable ASCII only; cannot draw "
                              + ", ".join(repr(c) for c in bad))
     scale = height_mm / CAP_UNITS
     widths = [text_width(line, height_mm) for line in lines]
@@ -82,5 +82,5 @@ def text_strokes(text: str, height_mm: float = 8.0, align: str = "center",
                 labels.append(f"text line {row + 1} char {col + 1} {ch!r}")
             x += adv * scale
     if not polys:
-        raise VectorgenError("the text has nothing to draw")
+        raise InputError("the text has nothing to draw")
     return strokes_from_polylines(polys, intensity, labels)

@@ -34,7 +34,6 @@ from __future__ import annotations
 import inspect
 import math
 import os
-import re
 import sys
 import time
 import traceback
@@ -43,40 +42,34 @@ from fractions import Fraction
 
 import numpy as np
 
-from .errors import VectorgenError
+__all__ = ["FixedSchedule", "Scene", "WallClockSchedule", "as_strokes", "circle", "clock", "dot",
+           "hms", "load_scene", "move", "polyline", "rotate", "scaled", "scene_timeline",
+           "schedule_for", "script_error", "strokes", "text", "time_of_day"]
+
+from .clocktime import DAY_S, hms, parse_time_of_day
+from .errors import InputError, VectorgenError
+from .flatten import circle_points
+from .sources import DrawingOptions, shape, stroke_text
 from .strokes import Strokes, concat, strokes_from_polylines
 
 MAX_UPDATE_HZ = 1000.0
-DAY = 24 * 3600
 
 
 # --- helpers for scripts -------------------------------------------------------------------------
-
-def hms(t: float) -> tuple[int, int, float]:
-    """Hours (0-23), minutes and seconds of a time of day given in seconds."""
-    t = float(t) % DAY
-    h = int(t // 3600)
-    m = int((t - 3600 * h) // 60)
-    return h, m, t - 3600 * h - 60 * m
-
 
 def clock(screen, t: float, radius: float | None = None, center=(0.0, 0.0),
           second_hand: bool = True, numerals: bool = True) -> Strokes:
     """A clock face showing time of day `t` (seconds since midnight): ticks, numerals and
     hands; radius 90 % of the largest that fits unless given."""
-    from shapes.clock import clock_face
-
-    h, m, s = hms(t)
-    return clock_face(screen, h, m, s if second_hand else None, radius=radius, center=center,
-                      numerals=numerals)
+    return shape("clock", screen, DrawingOptions(time_s=float(t) % DAY_S,
+                                                 seconds_hand=second_hand, radius_mm=radius,
+                                                 center=tuple(center), numerals=numerals))
 
 
 def text(s: str, height: float = 8.0, center=(0.0, 0.0), align: str = "center",
          intensity: float = 1.0) -> Strokes:
     """Stroke-font text, cap height `height` mm, centred on `center`; "\\n" starts a line."""
-    from shapes.text import text_strokes
-
-    return text_strokes(str(s), height, align, center, intensity)
+    return stroke_text(str(s), height, align, center, intensity)
 
 
 def polyline(points, closed: bool = False, intensity: float = 1.0,
@@ -96,10 +89,8 @@ def dot(x: float, y: float, intensity: float = 1.0) -> Strokes:
 def circle(radius: float, center=(0.0, 0.0), intensity: float = 1.0,
            tolerance: float = 0.02) -> Strokes:
     """A circle of `radius` mm around `center`, chords within `tolerance` mm."""
-    from shapes.basic import circle_points
-
     if not (math.isfinite(radius) and radius > 0):
-        raise VectorgenError(f"circle radius must be > 0 mm (got {radius})")
+        raise InputError(f"circle radius must be > 0 mm (radius={radius})", parameter="radius")
     return strokes_from_polylines([circle_points(radius, center, tolerance)], intensity,
                                   [f"scene circle r={radius:g}"])
 
@@ -210,23 +201,17 @@ def script_error(exc: BaseException, path: str, when: str) -> str:
 
 
 def parse_start_time(value, path: str) -> float:
-    if isinstance(value, bool):
-        raise VectorgenError(f"{path}: START_TIME must be seconds or \"HH:MM[:SS]\" (got {value!r})")
-    if isinstance(value, (int, float)):
+    """START_TIME as seconds: a number, or "HH:MM[:SS]"."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
         if not math.isfinite(value):
-            raise VectorgenError(f"{path}: START_TIME must be a finite number (got {value!r})")
+            raise InputError(f"{path}: START_TIME must be a finite number (got {value!r})")
         return float(value)
     if isinstance(value, str):
-        parts = value.strip().split(":")
         try:
-            nums = [float(p) for p in parts]
-        except ValueError:
-            nums = []
-        if len(nums) in (2, 3) and all(math.isfinite(n) and n >= 0 for n in nums) \
-                and nums[0] < 24 and nums[1] < 60 and (len(nums) == 2 or nums[2] < 60) \
-                and nums[0] == int(nums[0]) and nums[1] == int(nums[1]):
-            return nums[0] * 3600 + nums[1] * 60 + (nums[2] if len(nums) == 3 else 0.0)
-    raise VectorgenError(f"{path}: START_TIME must be seconds or \"HH:MM[:SS]\" (got {value!r})")
+            return parse_time_of_day(value, "START_TIME")[0]
+        except InputError:
+            pass
+    raise InputError(f"{path}: START_TIME must be seconds or \"HH:MM[:SS]\" (got {value!r})")
 
 
 def load_scene(path: str) -> Scene:
@@ -341,7 +326,7 @@ def schedule_for(scene: Scene, rate: int, live_origin: float | None = None,
     return FixedSchedule(rate, scene.update_hz, scene.start_time if start is None else start)
 
 
-def scene_timeline(path: str, renderer, seconds: float | None, notes: list,
+def scene_timeline(path: str, renderer, seconds: float | None,
                    start: float | None = None) -> list:
     """The frames of a scene for a file, as [(Frame, repeats), ...], on the scene's own clock
     (t from START_TIME, or `start`): update k goes on at the first frame boundary at or after
@@ -351,8 +336,6 @@ def scene_timeline(path: str, renderer, seconds: float | None, notes: list,
     sched = FixedSchedule(renderer.rate, scene.update_hz or 1.0,
                           scene.start_time if start is None else start)
     frame = scene.frame(renderer, sched.time(0))
-    kinds: set = set()
-    _add_notes(notes, frame.notes, kinds)
     if seconds is None:
         return [(frame, 1)]
     total = max(1, math.ceil(seconds * renderer.rate))
@@ -371,18 +354,3 @@ def scene_timeline(path: str, renderer, seconds: float | None, notes: list,
         while sched.due(k + 1) <= pos:
             k += 1
         frame = scene.frame(renderer, sched.time(k))
-        _add_notes(notes, frame.notes, kinds)
-
-
-def _add_notes(notes: list, new: list, kinds: set) -> None:
-    """Each kind of note once per file (frames differ only in the numbers they quote)."""
-    for n in new:
-        kind = re.sub(r"[-+0-9.]+", "#", n)
-        if kind not in kinds:
-            kinds.add(kind)
-            notes.append(n)
-
-
-__all__ = ["FixedSchedule", "Scene", "WallClockSchedule", "as_strokes", "circle", "clock", "dot",
-           "hms", "load_scene", "move", "polyline", "rotate", "scaled", "scene_timeline",
-           "schedule_for", "script_error", "strokes", "text", "time_of_day"]

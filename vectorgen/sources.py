@@ -1,107 +1,115 @@
-"""Sources for the command line: an SVG file, --text, --shape, or a scene script (.py).
+"""Sources: where drawings come from, found by name.
 
-Each static source resolves to `Strokes` in screen mm. A scene script resolves to a scene
-(see scene.py) that yields Strokes as a function of time.
+* `FILE_SOURCES`: drawing files by extension (``.svg`` ...): ``reader(path, screen, options)``
+  returns `Strokes` in screen mm.
+* `SHAPES`: built-in drawings by name: ``maker(screen, options)`` returns `Strokes`. The
+  `shapes` package registers its own (grid, crosshair, circle, clock) when imported; the engine
+  never imports it.
+* `STROKE_FONTS`: single-stroke fonts: ``font(text, height_mm, align, center, intensity)``
+  returns `Strokes`; the first registered is the one used.
+
+A new source is one function plus one `register_file_source` or `register_shape` line.
 """
 
 from __future__ import annotations
 
 import os
+from dataclasses import dataclass
 
-from .errors import VectorgenError
+from .errors import InputError
+from .registry import Registry
 
-SHAPE_NAMES = ("grid", "crosshair", "circle", "clock")
+__all__ = ["DrawingOptions", "FILE_SOURCES", "SHAPES", "STROKE_FONTS", "drawing_from_file",
+           "register_file_source", "register_shape", "register_stroke_font", "shape",
+           "stroke_text"]
 
-
-def add_source_arguments(parser) -> None:
-    g = parser.add_argument_group("source (give one)")
-    g.add_argument("source", nargs="?", metavar="SOURCE",
-                   help="an .svg drawing or a .py scene script")
-    g.add_argument("--text", help='text in the stroke font; "\\n" starts a new line')
-    g.add_argument("--shape", help="a built-in drawing: " + ", ".join(SHAPE_NAMES))
-    o = parser.add_argument_group("drawing options")
-    o.add_argument("--fit", default="page", choices=("page", "content", "off"),
-                   help="SVG placement: fit the page (default) or the drawing's bounds into the "
-                        "usable area, or 'off': one SVG unit = 1 mm")
-    o.add_argument("--tolerance", type=float, default=None, metavar="MM",
-                   help="chord tolerance for flattening curves (default: the profile's)")
-    o.add_argument("--text-height", type=float, default=None, metavar="MM",
-                   help="cap height of --text (default: a tenth of the screen height)")
-    o.add_argument("--align", default="center", choices=("left", "center", "right"),
-                   help="alignment of --text lines")
-    o.add_argument("--time", default=None, metavar="HH:MM[:SS]",
-                   help="time shown by --shape clock (default 10:10)")
-    o.add_argument("--grid-step", type=float, default=10.0, metavar="MM",
-                   help="spacing of --shape grid lines (default 10 mm)")
-    o.add_argument("--radius", type=float, default=None, metavar="MM",
-                   help="radius of --shape circle or clock")
+FILE_SOURCES = Registry("drawing file type")
+SHAPES = Registry("shape")
+STROKE_FONTS = Registry("stroke font")
 
 
-def source_kind(args) -> str:
-    given = [k for k in ("source", "text", "shape") if getattr(args, k) is not None]
-    if not given:
-        raise VectorgenError("no source: give an .svg or .py file, --text \"...\" or --shape NAME")
-    if len(given) > 1:
-        raise VectorgenError("give one source only (" + ", ".join(
-            "SOURCE" if g == "source" else f"--{g}" for g in given) + ")")
-    if given[0] == "source":
-        ext = os.path.splitext(args.source)[1].lower()
-        if ext == ".py":
-            return "scene"
-        if ext not in (".svg",):
-            raise VectorgenError(f"cannot draw '{args.source}': give an .svg drawing or a .py "
-                                 f"scene script")
-        if not os.path.exists(args.source):
-            raise VectorgenError(f"file not found: {args.source}")
-        return "svg"
-    return given[0]
+@dataclass
+class DrawingOptions:
+    """Options a source may use (each takes what applies to it).
+
+    Attributes
+    ----------
+    fit : str
+        SVG placement: "page", "content" or "off".
+    tolerance_mm : float
+        Chord tolerance for flattening curves.
+    text_height_mm : float or None
+        Cap height of text (None: a tenth of the screen height).
+    align : str
+        "left", "center" or "right".
+    time_s : float or None
+        Time of day shown by a clock (None: 10:10).
+    seconds_hand : bool
+        Whether a clock shows its seconds hand.
+    grid_step_mm : float
+    radius_mm : float or None
+    center : (float, float)
+        Where a shape is centred, mm.
+    numerals : bool
+        Whether a clock shows its numerals.
+    """
+
+    fit: str = "page"
+    tolerance_mm: float = 0.02
+    text_height_mm: float | None = None
+    align: str = "center"
+    time_s: float | None = None
+    seconds_hand: bool = False
+    grid_step_mm: float = 10.0
+    radius_mm: float | None = None
+    center: tuple = (0.0, 0.0)
+    numerals: bool = True
 
 
-def parse_clock_time(text: str | None) -> tuple[int, int, int | None]:
-    if text is None:
-        return 10, 10, None
-    parts = text.split(":")
-    try:
-        nums = [int(p) for p in parts]
-    except ValueError:
-        nums = []
-    if len(nums) not in (2, 3) or not (0 <= nums[0] < 24 and 0 <= nums[1] < 60) or \
-            (len(nums) == 3 and not 0 <= nums[2] < 60):
-        raise VectorgenError(f"--time must be HH:MM or HH:MM:SS (got {text!r})")
-    return nums[0], nums[1], (nums[2] if len(nums) == 3 else None)
+def register_file_source(extension: str, reader) -> None:
+    """Make drawing files with this extension (with the dot) readable."""
+    FILE_SOURCES.register(extension.lower(), reader)
 
 
-def static_strokes(args, profile, notes: list):
-    """The Strokes of a static source (svg, text or shape)."""
-    kind = source_kind(args)
-    tol = args.tolerance if args.tolerance is not None else profile.beam.chord_tolerance_mm
-    if not (tol > 0 and tol < 1e6):
-        raise VectorgenError(f"--tolerance must be > 0 mm (got {tol})")
-    screen = profile.screen
-    if kind == "svg":
-        from .svgsource import svg_to_strokes
+def register_shape(name: str, maker) -> None:
+    """Make a built-in drawing available by name."""
+    SHAPES.register(name, maker)
 
-        return svg_to_strokes(args.source, screen, fit=args.fit, tolerance_mm=tol, notes=notes)
-    if kind == "text":
-        from shapes.text import text_strokes
 
-        h = args.text_height if args.text_height is not None else 0.1 * 2 * screen.half_extent[1]
-        return text_strokes(args.text, h, args.align)
-    if kind == "shape":
-        import shapes
+def register_stroke_font(name: str, font) -> None:
+    """Make a single-stroke font available (the first registered is used for text)."""
+    STROKE_FONTS.register(name, font)
 
-        name = args.shape.lower()
-        if name not in SHAPE_NAMES:
-            raise VectorgenError(f"unknown shape {args.shape!r}: choose from "
-                                 + ", ".join(SHAPE_NAMES))
-        if args.radius is not None and not args.radius > 0:
-            raise VectorgenError(f"--radius must be > 0 mm (got {args.radius})")
-        if name == "grid":
-            return shapes.grid(screen, args.grid_step)
-        if name == "crosshair":
-            return shapes.crosshair(screen)
-        if name == "circle":
-            return shapes.circle(screen, args.radius, tolerance_mm=tol)
-        h, m, s = parse_clock_time(args.time)
-        return shapes.clock_face(screen, h, m, s, radius=args.radius)
-    raise VectorgenError("a scene script is not a static drawing")
+
+def drawing_from_file(path, screen, options: DrawingOptions | None = None):
+    """The Strokes of a drawing file, read by the source registered for its extension."""
+    ext = os.path.splitext(os.fspath(path))[1].lower()
+    if ext not in FILE_SOURCES:
+        raise InputError(f"cannot draw '{path}': give one of "
+                         + ", ".join(FILE_SOURCES.names()) + " (or a .py scene script)")
+    return FILE_SOURCES[ext](path, screen, options or DrawingOptions())
+
+
+def shape(name: str, screen, options: DrawingOptions | None = None):
+    """A built-in drawing by name (the `shapes` package must have been imported)."""
+    if not SHAPES.names():
+        raise InputError("no built-in shapes are registered (import the shapes package)")
+    return SHAPES[name](screen, options or DrawingOptions())
+
+
+def stroke_text(text: str, height_mm: float = 8.0, align: str = "center", center=(0.0, 0.0),
+                intensity: float = 1.0):
+    """Text in the registered single-stroke font."""
+    names = STROKE_FONTS.names()
+    if not names:
+        raise InputError("no stroke font is registered (import the shapes package)")
+    return STROKE_FONTS[names[0]](text, height_mm, align, center, intensity)
+
+
+def _read_svg(path, screen, options: DrawingOptions):
+    from .svgsource import svg_to_strokes
+
+    return svg_to_strokes(path, screen, fit=options.fit, tolerance_mm=options.tolerance_mm)
+
+
+register_file_source(".svg", _read_svg)

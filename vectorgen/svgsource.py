@@ -21,10 +21,13 @@ import warnings
 
 import numpy as np
 
-from .errors import VectorgenError
-from .inputs import read_bytes
-from .geometry import fit_transform, flatten_table, segment_table
+from .errors import InputError, VectorgenWarning
+from .files import read_bytes
+from .flatten import flatten_table, segment_table
+from .screen import fit_transform
 from .strokes import Strokes, check_finite, clean
+
+__all__ = ["FIT_MODES", "page_box", "parse_length", "read_svg_tree", "svg_to_strokes"]
 
 SVG_NS = "http://www.w3.org/2000/svg"
 MAX_SVG_BYTES = 64 * 1024 * 1024
@@ -56,13 +59,13 @@ def read_svg_tree(path: str):
 
     data = read_bytes(path, "SVG file", MAX_SVG_BYTES)
     if b"<!ENTITY" in data or b"<!entity" in data:
-        raise VectorgenError(f"{path}: refusing an SVG with XML entity declarations")
+        raise InputError(f"{path}: refusing an SVG with XML entity declarations")
     try:
         root = ET.fromstring(data)
     except ET.ParseError as exc:
-        raise VectorgenError(f"{path}: not well-formed XML ({exc})") from None
+        raise InputError(f"{path}: not well-formed XML ({exc})") from None
     if _local(root.tag) != "svg":
-        raise VectorgenError(f"{path}: not an SVG file (root element is <{_local(root.tag)}>)")
+        raise InputError(f"{path}: not an SVG file (root element is <{_local(root.tag)}>)")
     if not root.tag.startswith("{"):
         # No xmlns: put every element into the SVG namespace so svgpathtools finds them.
         for el in root.iter():
@@ -82,9 +85,9 @@ def page_box(root) -> tuple[float, float, float, float] | None:
         try:
             x, y, w, h = (float(v) for v in vb.replace(",", " ").split())
         except ValueError:
-            raise VectorgenError(f"SVG viewBox is not four numbers: {vb!r}") from None
+            raise InputError(f"SVG viewBox is not four numbers: {vb!r}") from None
         if not all(np.isfinite([x, y, w, h])) or w <= 0 or h <= 0:
-            raise VectorgenError(f"SVG viewBox must have a positive width and height: {vb!r}")
+            raise InputError(f"SVG viewBox must have a positive width and height: {vb!r}")
         return x, y, x + w, y + h
     w, h = parse_length(root.get("width")), parse_length(root.get("height"))
     if w and h and w > 0 and h > 0 and np.isfinite(w) and np.isfinite(h):
@@ -115,14 +118,36 @@ def _element_label(el, index: int) -> str:
     return f"<{tag} id={ident!r}>" if ident else f"<{tag}> #{index + 1}"
 
 
-def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0.02,
-                   notes: list | None = None) -> Strokes:
-    """Read an SVG and return its strokes in screen mm. `notes` collects warnings for the user
-    (e.g. skipped <text> elements)."""
+def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0.02) -> Strokes:
+    """Read an SVG and return its strokes in screen mm.
+
+    Parameters
+    ----------
+    path : str
+    screen : Screen
+        The usable area the page (or the drawing) is fitted into.
+    fit : {"page", "content", "off"}
+    tolerance_mm : float
+        Chord tolerance of the flattened curves, on the screen.
+
+    Returns
+    -------
+    Strokes
+
+    Raises
+    ------
+    InputError
+        The file cannot be read, is not SVG, or has nothing drawable.
+
+    Warns
+    -----
+    VectorgenWarning
+        For elements that are not drawn (<text>, <use>, <image>).
+    """
     from svgpathtools.document import flattened_paths
 
     if fit not in FIT_MODES:
-        raise VectorgenError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
+        raise InputError(f"unknown fit mode {fit!r}: use one of {', '.join(FIT_MODES)}")
     root = read_svg_tree(path)
     _rect_radii(root)
     _check_path_data(root, path)
@@ -133,7 +158,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
             warnings.simplefilter("ignore")
             paths = flattened_paths(root)
     except (ValueError, TypeError, IndexError, KeyError, ZeroDivisionError, OverflowError) as exc:
-        raise VectorgenError(f"{path}: cannot read the SVG's shapes ({exc})") from None
+        raise InputError(f"{path}: cannot read the SVG's shapes ({exc})") from None
 
     page = page_box(root)
     runs, inten, labels = [], [], []
@@ -154,9 +179,9 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
                 labels.append(label)
                 begin = i + 1
     if not runs:
-        hint = (f" ({texts} <text> element(s) found: convert text to paths, or use --text)"
+        hint = (f" ({texts} <text> element(s) found: convert text to paths, or draw it as text)"
                 if texts else "")
-        raise VectorgenError(f"{path}: nothing drawable in this SVG{hint}")
+        raise InputError(f"{path}: nothing drawable in this SVG{hint}")
     # every segment read out of svgpathtools once, for the bounds and for each flattening
     table = segment_table(runs)
 
@@ -167,7 +192,7 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
         ctrl = np.concatenate([ctrl, np.array([c for seg in table.arcs for c in _seg_pts(seg)],
                                               dtype=complex)])
     if not np.all(np.isfinite(ctrl)) or np.abs(ctrl).max() > 1e12:
-        raise VectorgenError(f"{path}: coordinates are not finite or are enormous")
+        raise InputError(f"{path}: coordinates are not finite or are enormous")
     hull = (ctrl.real.min(), ctrl.imag.min(), ctrl.real.max(), ctrl.imag.max())
 
     def placement(content_box):
@@ -193,13 +218,14 @@ def svg_to_strokes(path: str, screen, fit: str = "page", tolerance_mm: float = 0
     if abs(matrix[0, 0]) > scale * (1 + 1e-9):      # tighter bounds, larger scale: re-flatten
         strokes = flatten(abs(matrix[0, 0]))
     strokes = strokes.transformed(matrix, offset)
-    if notes is not None:
-        if texts:
-            notes.append(f"{texts} <text> element(s) in {os.path.basename(path)} were skipped: "
-                         "convert text to paths, or use --text")
-        if others:
-            notes.append(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
-                         + " element(s) are not drawn: convert them to paths")
+    if texts:
+        warnings.warn(f"{texts} <text> element(s) in {os.path.basename(path)} were skipped: "
+                      "convert text to paths, or use a text source", VectorgenWarning,
+                      stacklevel=2)
+    if others:
+        warnings.warn(f"{os.path.basename(path)}: " + ", ".join(f"<{t}>" for t in others)
+                      + " element(s) are not drawn: convert them to paths", VectorgenWarning,
+                      stacklevel=2)
     return strokes
 
 
@@ -214,7 +240,7 @@ def _check_path_data(root, path: str) -> None:
         d = el.get("d") or ""
         m = _PATH_BAD_CHAR.search(d)
         if m:
-            raise VectorgenError(f"{path}: {_element_label(el, index)} has {m.group()!r} at "
+            raise InputError(f"{path}: {_element_label(el, index)} has {m.group()!r} at "
                                  f"character {m.start() + 1} of its path data, which SVG path "
                                  f"syntax does not allow")
 

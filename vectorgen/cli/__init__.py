@@ -3,7 +3,8 @@
 Each command lives in a module listed in COMMAND_MODULES with a `register(subparsers)` function
 that adds its parser and sets `func(args) -> int`. Modules import their heavy dependencies inside
 the functions, so `vectorgen --help` starts fast. Bad input is a `VectorgenError`: one line on
-stderr and exit status 2, never a traceback.
+stderr (with the option that sets the parameter it names) and exit status 2, never a traceback.
+The engine's warnings are printed as they happen, each kind once.
 """
 
 from __future__ import annotations
@@ -13,16 +14,17 @@ import importlib
 import os
 import sys
 
-from .errors import VectorgenError
+from ..errors import VectorgenError
+from .terminal import PROG, WarningPrinter, warn, with_flag_hint
+
+__all__ = ["COMMAND_MODULES", "build_parser", "main", "warn"]
 
 COMMAND_MODULES = (
-    "vectorgen.cmd_render",
-    "vectorgen.cmd_demo",
-    "vectorgen.cmd_calibrate",
-    "vectorgen.cmd_live",
+    "vectorgen.cli.render",
+    "vectorgen.cli.demo",
+    "vectorgen.cli.calibrate",
+    "vectorgen.cli.live",
 )
-
-PROG = "vectorgen"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -33,7 +35,7 @@ class _Parser(argparse.ArgumentParser):
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog=PROG, description="Drive XY vector displays: drawings, text and scenes "
                      "to blanked, evenly spaced, corrected X/Y(/Z) deflection signals.")
-    from . import __version__
+    from .. import __version__
 
     parser.add_argument("--version", action="version", version=f"{PROG} {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
@@ -42,26 +44,17 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def warn(message: str) -> None:
-    print(f"{PROG}: warning: {message}", file=sys.stderr)
-
-
-def warn_notes(notes) -> None:
-    """Each distinct note once, in order, as a warning line."""
-    for n in dict.fromkeys(notes):
-        warn(n)
-
-
 def main(argv=None) -> int:
     try:
-        parser = build_parser()
-        args = parser.parse_args(argv)
-        if not getattr(args, "func", None):
-            parser.print_help()
-            return 2
-        return int(args.func(args) or 0)
+        with WarningPrinter():
+            parser = build_parser()
+            args = parser.parse_args(argv)
+            if not getattr(args, "func", None):
+                parser.print_help()
+                return 2
+            return int(args.func(args) or 0)
     except VectorgenError as exc:
-        print(f"{PROG}: error: {exc}", file=sys.stderr)
+        print(f"{PROG}: error: {with_flag_hint(str(exc), exc.parameter)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print(f"{PROG}: stopped", file=sys.stderr)

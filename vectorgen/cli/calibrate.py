@@ -17,14 +17,14 @@ import json
 import math
 import os
 
-from .errors import VectorgenError
+from ..errors import InputError, VectorgenError
 
 TERMS = ("auto", "gains", "affine", "full")
 SHOW_NAMES = 8
 
 
 def _warn(msg: str) -> None:
-    from .cli import warn
+    from .terminal import warn
 
     warn(msg)
 
@@ -48,21 +48,21 @@ def cmd_pattern(args) -> int:
     from calibration.patterns import make_pattern
     from calibration.sheet import write_sheet
 
-    from .cli import warn_notes
-    from .cmd_render import _check_seconds, load_setup, repeats_for
-    from .preview import phosphor_image, write_png
-    from .render import report_line
-    from .sinks import SIGNAL_EXTENSIONS, check_output_path, write_signal
+    from ..files import check_output_path
+    from ..pipeline import report_line
+    from ..preview import phosphor_image, write_png
+    from ..sinks import signal_extensions, write_signal
+    from .render import _check_seconds, load_setup, repeats_for
 
     if args.output is None and not args.play:
         raise VectorgenError("give -o OUT to write the pattern to a file, or --play to show it "
                              "live (or both)")
     if args.play:
-        from . import live
+        from .. import live
 
         live.sounddevice()                  # PortAudio present? (before any file is written)
     if args.output is not None:
-        check_output_path(args.output, SIGNAL_EXTENSIONS)
+        check_output_path(args.output, signal_extensions())
     check_output_path(args.sheet, (".csv",))
     if args.output is not None and os.path.abspath(args.sheet) == os.path.abspath(args.output):
         raise VectorgenError("the signal (-o) and the sheet (--sheet) must be different files")
@@ -74,9 +74,7 @@ def cmd_pattern(args) -> int:
     pat = make_pattern(args.kind, profile, rows=args.rows, cols=args.cols, extent=args.extent,
                        mark=args.mark)
     frame = renderer.frame(pat.strokes)
-    notes = list(frame.notes)
     repeats = repeats_for(args.seconds, renderer.rate, frame.samples)
-    warn_notes(notes)
     if args.mark == "dot":
         _warn("dot marks hold the beam on a few spots: keep the brightness low, a dwelling spot "
               "burns the phosphor")
@@ -86,7 +84,8 @@ def cmd_pattern(args) -> int:
     backup = write_sheet(args.sheet, pat.names, pat.drive)
     if args.preview:
         write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
-                                               frame.plan.lit))
+                                               frame.plan.lit, chain=renderer.chain,
+                                               rate=renderer.rate))
     if not args.quiet:
         rep = frame.report(profile)
         print(report_line(rep) + (f"; wrote {repeats} frame(s) to {args.output}"
@@ -97,7 +96,7 @@ def cmd_pattern(args) -> int:
         print("measure where each target's centre lands, in mm from the centre of the face "
               "(+x right, +y up), and fill measured_x_mm, measured_y_mm")
     if args.play:
-        from .cmd_live import play_frame
+        from .live import play_frame
 
         return play_frame(frame, profile, args.device, args.seconds, args.quiet)
     return 0
@@ -116,8 +115,8 @@ def cmd_fit(args) -> int:
                                  write_residual_png)
     from calibration.sheet import read_sheet
 
-    from .profile import load_profile, save_profile
-    from .sinks import atomic_write_bytes, check_output_path
+    from ..files import atomic_write_bytes, check_output_path
+    from ..profile import load_profile, save_profile
 
     check_output_path(args.output, (".toml",))
     residuals = args.residuals or _default_residuals_path(args.output)
@@ -172,8 +171,8 @@ def cmd_anode(args) -> int:
     from calibration.anode import rescale_profile
     from calibration.fit import check_model, geometry
 
-    from .profile import load_profile, save_profile
-    from .sinks import check_output_path
+    from ..files import check_output_path
+    from ..profile import load_profile, save_profile
 
     out = args.output or args.profile
     check_output_path(out, (".toml",))
@@ -181,7 +180,7 @@ def cmd_anode(args) -> int:
     _check_finite(args.from_kv, "--from-kv")
     prof = load_profile(args.profile)
     new, f, kv_old = rescale_profile(prof, args.kv, args.from_kv)
-    from .deflection import DeflectionModel
+    from ..deflection import DeflectionModel
 
     reach = check_model(DeflectionModel.from_profile(new), new.screen)["max_drive_usable_area"]
     backup = save_profile(new, out)
@@ -208,7 +207,7 @@ def cmd_spots(args) -> int:
     from calibration.sheet import read_sheet, write_sheet
     from calibration.spots import parse_refs, spots_to_sheet
 
-    from .sinks import check_output_path
+    from ..files import check_output_path
 
     out = args.output or args.sheet
     check_output_path(out, (".csv",))
@@ -240,7 +239,7 @@ def cmd_spots(args) -> int:
 # --- parsers ------------------------------------------------------------------------------------
 
 def register(sub) -> None:
-    from .cmd_render import add_output_arguments
+    from .render import add_output_arguments
 
     p = sub.add_parser(
         "pattern", help="draw a calibration pattern and write its measurement sheet",

@@ -7,22 +7,22 @@ from __future__ import annotations
 import argparse
 import os
 
-from .errors import VectorgenError
+from ..errors import InputError
 
-DEMO_SVG = os.path.join(os.path.dirname(__file__), "data", "demo.svg")
+DEMO_SVG = os.path.join(os.path.dirname(os.path.dirname(__file__)), "data", "demo.svg")
 
 
 def cmd_demo(args) -> int:
-    from .cmd_render import cmd_render
+    from .render import cmd_render
 
     stem, ext = os.path.splitext(args.output)
     if ext.lower() != ".wav":
-        raise VectorgenError(f"the demo writes a .wav file (got {args.output!r})")
+        raise InputError(f"the demo writes a .wav file (got {args.output!r})")
     render_args = argparse.Namespace(
         source=DEMO_SVG, text=None, shape=None, fit="page", tolerance=None, text_height=None,
         align="center", time=None, grid_step=10.0, radius=None,
         profile=args.profile, rate=args.rate, channels=args.channels, speed=None,
-        refresh=args.refresh, samples=None, keep_order=False,
+        refresh=args.refresh, samples=None, keep_order=False, order=None,
         output=args.output, seconds=args.seconds, pcm16=False,
         report=stem + ".json", preview=stem + ".png", quiet=False)
     code = cmd_render(render_args)

@@ -3,23 +3,16 @@
 from __future__ import annotations
 
 import os
-import signal as _signal
 import sys
 import time
 
-from .errors import VectorgenError
-from .sources import add_source_arguments
-
-CAUTIONS = (
-    "caution: lethal high voltage in the tube's anode and deflection circuits: covers on; "
-    "follow local electrical codes and qualified practice.",
-    "caution: a bright stationary spot burns the phosphor: keep brightness low until the "
-    "picture is confirmed.",
-)
+from ..errors import VectorgenError
+from .source_options import add_source_arguments
+from .terminal import CAUTIONS, Stopper, fmt_duration, status_line, wait_interval
 
 
 def cmd_devices(args) -> int:
-    from .live import output_devices
+    from ..live import output_devices
 
     devices = output_devices()
     if not devices:
@@ -39,39 +32,15 @@ def cmd_devices(args) -> int:
 
 
 def _check_seconds(seconds):
-    from .cmd_render import _check_seconds as check
+    from .render import _check_seconds as check
 
     check(seconds, 366 * 24 * 3600, "a year")
 
 
-class _Stopper:
-    """Turns Ctrl-C and SIGTERM into a clean stop request while the stream runs."""
-
-    def __init__(self):
-        self.reason = None
-        self._old = {}
-
-    def __enter__(self):
-        for sig in (_signal.SIGINT, _signal.SIGTERM):
-            try:
-                self._old[sig] = _signal.signal(sig, self._handle)
-            except (ValueError, OSError):       # not the main thread
-                pass
-        return self
-
-    def _handle(self, signum, frame):
-        self.reason = "Ctrl-C" if signum == _signal.SIGINT else "SIGTERM"
-
-    def __exit__(self, *exc):
-        for sig, old in self._old.items():
-            _signal.signal(sig, old)
-        return False
-
-
 def cmd_play(args) -> int:
-    from . import live
-    from .cmd_render import load_setup
-    from .sources import source_kind, static_strokes
+    from .. import live
+    from .render import load_setup
+    from .source_options import source_kind, static_strokes
 
     _check_seconds(args.seconds)
     kind = source_kind(args)
@@ -79,7 +48,7 @@ def cmd_play(args) -> int:
     profile, renderer = load_setup(args)
     scene = None
     if kind == "scene":
-        from .scene import load_scene, schedule_for
+        from ..scene import load_scene, schedule_for
 
         scene = load_scene(args.source)
         animated = scene.update_hz > 0
@@ -87,10 +56,8 @@ def cmd_play(args) -> int:
     rate, channels = renderer.rate, renderer.channels
     live.check_device(device, channels, rate)
 
-    notes: list = []
     if scene is None:
-        frame = renderer.frame(static_strokes(args, profile, notes))
-        notes.extend(frame.notes)
+        frame = renderer.frame(static_strokes(args, profile))
         animated = False
 
     park, zmask = live.park_levels(profile.output, channels)
@@ -103,28 +70,38 @@ def cmd_play(args) -> int:
         schedule = schedule_for(scene, rate, live_origin=origin) if animated else None
         t0 = schedule.time(0) if schedule is not None else scene.start_time
         if scene.live_clock and not animated:
-            from .scene import time_of_day
+            from ..scene import time_of_day
 
             t0 = time_of_day(origin)
         frame = scene.frame(renderer, t0)
-        notes.extend(frame.notes)
-
-    from .cli import warn_notes
-
-    warn_notes(notes)
     player = live.Player(frame.signal, rate, park, zmask, stop_after=stop_after)
     producer = None
     if animated:
-        producer = live.Producer(player, lambda k: scene.frame(renderer, schedule.time(k)).signal,
+        producer = live.Producer(player, scene_updates(scene, renderer, schedule, frame),
                                  schedule)
         producer.prime()
     return run_stream(player, producer, device, rate, channels, args.quiet)
 
 
+def scene_updates(scene, renderer, schedule, first_frame):
+    """render(k) for the producer: update k's loop and, when a stage plays something special
+    on a frame switch, its first pass after update k - 1 (see `Renderer.first_pass`)."""
+    made = {0: first_frame}
+
+    def render(k):
+        frame = scene.frame(renderer, schedule.time(k))
+        prev = made.get(k - 1)
+        made.clear()
+        made[k] = frame
+        first = renderer.first_pass(prev, frame) if prev is not None else None
+        return frame.signal, first
+    return render
+
+
 def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) -> int:
     """Print the cautions, run the stream until it ends (--seconds, Ctrl-C, SIGTERM or an error),
     park, print the summary line; raise the producer's or the callback's error as one line."""
-    from . import live
+    from .. import live
 
     for line in CAUTIONS:
         print(f"vectorgen: {line}", file=sys.stderr)
@@ -135,11 +112,11 @@ def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) 
     started = time.monotonic()
     stop_asked = None
     try:
-        with _Stopper() as stopper:
+        with Stopper() as stopper:
             player.start(device.index)
             if producer is not None:
                 producer.start()
-            step = live.wait_interval(player_seconds(player))
+            step = wait_interval(player_seconds(player))
             while not player.wait(step):
                 if stopper.reason and stop_asked is None:
                     player.request_stop(stopper.reason)
@@ -147,7 +124,7 @@ def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) 
                 if stop_asked is not None and time.monotonic() - stop_asked > 5.0:
                     break                    # the stream no longer runs its callback
                 if tty:
-                    sys.stdout.write("\r" + live.status_line(player, device,
+                    sys.stdout.write("\r" + status_line(player, device,
                                                               time.monotonic() - started))
                     sys.stdout.flush()
             if stopper.reason:
@@ -164,7 +141,7 @@ def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) 
     why = {"Ctrl-C": "stopped by Ctrl-C", "SIGTERM": "stopped by SIGTERM",
            "error": "stopped by an error", "end": "end of --seconds"}.get(
         player.stop_reason or "end", "stopped")
-    print(f"played {live.fmt_duration(s['seconds'])} on '{device.name}' ({device.hostapi}) at "
+    print(f"played {fmt_duration(s['seconds'])} on '{device.name}' ({device.hostapi}) at "
           f"{rate} Hz, {channels} channels: frames {s['frames']}, updates {s['updates']}, "
           f"late frames {s['late']}, underruns {s['underruns']}; {why}, parked")
     sys.stdout.flush()
@@ -188,7 +165,7 @@ def player_seconds(player) -> float | None:
 def play_frame(frame, profile, device_spec, seconds: float | None, quiet: bool) -> int:
     """Play one rendered frame in a loop on the device given by --device (a static drawing,
     a calibration pattern)."""
-    from . import live
+    from .. import live
 
     _check_seconds(seconds)
     device = live.find_device(device_spec)
@@ -206,7 +183,7 @@ def register(sub) -> None:
                        "API, output channels and default sample rate; * marks the default.")
     p.set_defaults(func=cmd_devices)
 
-    from .cmd_render import add_output_arguments
+    from .render import add_output_arguments
 
     p = sub.add_parser("play", help="play a source live through an audio interface",
                        description="Play a drawing or a scene script (.py) live through an audio "

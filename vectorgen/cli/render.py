@@ -6,9 +6,8 @@ import json
 import math
 
 
-from .cli import warn_notes
-from .errors import VectorgenError
-from .sources import add_source_arguments
+from ..errors import InputError
+from .source_options import add_source_arguments
 
 MAX_OUTPUT_BYTES = 2**32 - 2**20     # a RIFF/WAV file holds at most 4 GiB; all formats share it
 
@@ -30,32 +29,42 @@ def add_output_arguments(parser) -> None:
                    help="fit one frame into exactly N samples (waveform generator memory)")
     g.add_argument("--keep-order", action="store_true",
                    help="draw strokes in source order (default: ordered for short blanked moves)")
+    g.add_argument("--order", default=None, metavar="STRATEGY",
+                   help="stroke ordering strategy: " + ", ".join(_orderings())
+                   + " (default greedy; --keep-order = input)")
 
 
-def load_setup(args):
+def _orderings() -> list:
+    from ..beamplan import ORDERINGS
+
+    return ORDERINGS.names()
+
+
+def load_setup(args, stages=()):
     """(profile, Renderer) from the shared signal options."""
-    from .profile import load_profile
-    from .render import Renderer, Settings
+    from ..pipeline import Renderer, Settings
+    from ..profile import load_profile
 
     profile = load_profile(args.profile)
+    ordering = getattr(args, "order", None) or ("input" if args.keep_order else "greedy")
+    if args.keep_order and getattr(args, "order", None) not in (None, "input"):
+        raise InputError("--keep-order and --order say different things: give one")
     settings = Settings(rate=args.rate, channels=args.channels, speed=args.speed,
-                        refresh=args.refresh, frame_samples=args.samples,
-                        reorder=not args.keep_order)
-    return profile, Renderer(profile, settings)
+                        refresh=args.refresh, frame_samples=args.samples, ordering=ordering)
+    return profile, Renderer(profile, settings, stages)
 
 
-def timeline(args, profile, renderer, notes: list, seconds: float | None):
+def timeline(args, profile, renderer, seconds: float | None):
     """The frames to output, as a list of (Frame, repeats). A static drawing is one frame
     repeated to fill `seconds` (one frame when None); a scene script is rendered on its own
     clock."""
-    from .sources import source_kind, static_strokes
+    from .source_options import source_kind, static_strokes
 
     if source_kind(args) == "scene":
-        from .scene import scene_timeline
+        from ..scene import scene_timeline
 
-        return scene_timeline(args.source, renderer, seconds, notes)
-    frame = renderer.frame(static_strokes(args, profile, notes))
-    notes.extend(frame.notes)
+        return scene_timeline(args.source, renderer, seconds)
+    frame = renderer.frame(static_strokes(args, profile))
     return [(frame, repeats_for(seconds, renderer.rate, frame.samples))]
 
 
@@ -66,27 +75,27 @@ def repeats_for(seconds: float | None, rate: int, frame_samples: int) -> int:
 
 def _check_seconds(seconds, most_s: float = 24 * 3600, most: str = "a day"):
     if seconds is not None and not (math.isfinite(seconds) and 0 < seconds <= most_s):
-        raise VectorgenError(f"--seconds must be > 0 and at most {most} (got {seconds})")
+        raise InputError(f"--seconds must be > 0 and at most {most} (got {seconds})")
 
 
 def cmd_render(args) -> int:
     import numpy as np
 
-    from .render import report_line
-    from .sinks import SIGNAL_EXTENSIONS, atomic_write_bytes, check_output_path, write_signal
+    from ..files import atomic_write_bytes, check_output_path
+    from ..pipeline import report_line
+    from ..sinks import signal_extensions, write_signal
 
-    check_output_path(args.output, SIGNAL_EXTENSIONS)
+    check_output_path(args.output, signal_extensions())
     if args.report:
         check_output_path(args.report, (".json",))
     if args.preview:
         check_output_path(args.preview, (".png",))
     _check_seconds(args.seconds)
     profile, renderer = load_setup(args)
-    notes: list = []
-    parts = timeline(args, profile, renderer, notes, args.seconds)
+    parts = timeline(args, profile, renderer, args.seconds)
     total = sum(f.samples * n for f, n in parts) * renderer.channels
     if total * 4 > MAX_OUTPUT_BYTES:
-        raise VectorgenError(f"the output would be {total * 4 / 2**30:.1f} GiB, over the 4 GiB "
+        raise InputError(f"the output would be {total * 4 / 2**30:.1f} GiB, over the 4 GiB "
                              f"a WAV file can hold; shorten --seconds or lower --rate")
     if len(parts) == 1 and parts[0][1] == 1:
         signal = parts[0][0].signal         # one frame once: no copies
@@ -97,13 +106,13 @@ def cmd_render(args) -> int:
     rep.update(frames=int(sum(n for _f, n in parts)), distinct_frames=len(parts),
                total_samples=len(signal), duration_s=len(signal) / renderer.rate,
                output=args.output, sample_format="int16" if args.pcm16 else "float32")
-    warn_notes(notes)
     write_signal(args.output, signal, renderer.rate, first.names, pcm16=args.pcm16)
     if args.preview:
-        from .preview import phosphor_image, write_png
+        from ..preview import phosphor_image, write_png
 
         write_png(args.preview, phosphor_image(first.signal, profile, renderer.channels,
-                                               first.plan.lit))
+                                               first.plan.lit, chain=renderer.chain,
+                                               rate=renderer.rate))
     if args.report:
         atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
     if not args.quiet:
@@ -113,24 +122,23 @@ def cmd_render(args) -> int:
 
 
 def cmd_preview(args) -> int:
-    from .preview import phosphor_image, write_png, write_signal_plot
-    from .render import report_line
-    from .sinks import check_output_path
+    from ..files import check_output_path
+    from ..pipeline import report_line
+    from ..preview import phosphor_image, write_png, write_signal_plot
 
     check_output_path(args.output, (".png",))
     if args.signals:
         check_output_path(args.signals, (".png",))
     if not 16 <= args.width <= 8000:
-        raise VectorgenError(f"--width must be between 16 and 8000 pixels (got {args.width})")
+        raise InputError(f"--width must be between 16 and 8000 pixels (got {args.width})")
     if not (math.isfinite(args.spot) and args.spot > 0):
-        raise VectorgenError(f"--spot must be > 0 mm (got {args.spot})")
+        raise InputError(f"--spot must be > 0 mm (got {args.spot})")
     profile, renderer = load_setup(args)
-    notes: list = []
-    frame = timeline(args, profile, renderer, notes, None)[0][0]
-    warn_notes(notes)
+    frame = timeline(args, profile, renderer, None)[0][0]
     write_png(args.output, phosphor_image(frame.signal, profile, renderer.channels,
                                           frame.plan.lit, width_px=args.width,
-                                          spot_mm=args.spot))
+                                          spot_mm=args.spot, chain=renderer.chain,
+                                          rate=renderer.rate))
     if args.signals:
         write_signal_plot(args.signals, frame.signal, frame.names, renderer.rate)
     if not args.quiet:
@@ -139,26 +147,26 @@ def cmd_preview(args) -> int:
 
 
 def cmd_init_profile(args) -> int:
-    from .profile import Profile, default_for_screen, profile_from_dict, save_profile
+    from ..profile import Profile, default_for_screen, profile_from_dict, save_profile
 
     prof = Profile(name=args.name)
     if args.round is not None:
         if not (math.isfinite(args.round) and args.round > 0):
-            raise VectorgenError(f"--round must be a diameter > 0 mm (got {args.round})")
+            raise InputError(f"--round must be a diameter > 0 mm (got {args.round})")
         prof.screen.shape, prof.screen.diameter_mm = "round", args.round
     if args.size is not None:
         try:
             w, h = (float(v) for v in args.size.lower().split("x"))
         except ValueError:
-            raise VectorgenError(f"--size must be WIDTHxHEIGHT in mm, e.g. 100x80 "
+            raise InputError(f"--size must be WIDTHxHEIGHT in mm, e.g. 100x80 "
                                  f"(got {args.size!r})") from None
         if not (w > 0 and h > 0 and math.isfinite(w) and math.isfinite(h)):
-            raise VectorgenError(f"--size must be positive (got {args.size!r})")
+            raise InputError(f"--size must be positive (got {args.size!r})")
         prof.screen.width_mm, prof.screen.height_mm = w, h
     if args.channels:
         prof.output.channels = args.channels
     prof = default_for_screen(prof)
-    from .profile import profile_to_dict
+    from ..profile import profile_to_dict
 
     profile_from_dict(profile_to_dict(prof), "<new profile>")   # it must load back
     backup = save_profile(prof, args.output)
