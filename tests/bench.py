@@ -97,10 +97,10 @@ def stage_times(svg: str):
     from svgpathtools.document import flattened_paths
 
     from vectorgen.beamplan import plan_frame
-    from vectorgen.geometry import clip_parts
+    from vectorgen.clip import clip_parts
+    from vectorgen.correction import plan_signal
     from vectorgen.profile import Profile
-    from vectorgen.render import Frame, Renderer, Settings
-    from vectorgen.signal import correct, plan_channels
+    from vectorgen.pipeline import Renderer, Settings
     from vectorgen.strokes import check_finite
     from vectorgen.svgsource import read_svg_tree, svg_to_strokes
 
@@ -123,15 +123,14 @@ def stage_times(svg: str):
     clipped, n_cut = clip_parts(strokes, prof.screen)
     t["clip"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    plan = plan_frame(clipped, renderer.timing, renderer.target, True)
+    plan = plan_frame(clipped, renderer.timing, renderer.target, "greedy")
     t["plan"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    signal, names, peak, drive = plan_channels(plan, renderer.model, prof.output,
-                                               renderer.channels)
+    plan_signal(plan, renderer.model, renderer.chain, renderer.cmap, RATE)
     t["channels"] = time.perf_counter() - t0
-    model = renderer.model
-    frame = Frame(signal, names, plan, drive if drive is not None else
-                  (lambda: correct(plan, model)), RATE, n_cut, peak_drive=peak)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        frame = renderer.frame(strokes)
     return t, frame, strokes, renderer
 
 
@@ -140,7 +139,7 @@ STAGE_NAMES = {
     "svg rest": "rest of svg_to_strokes (checks, bounds, placement, flattening)",
     "clip": "check_finite + clip_parts (clip_to_screen before packing)",
     "plan": "plan_frame (stroke order, arc lengths, corners, sample blocks, jumps)",
-    "channels": "plan_channels (sample positions, correction, channel mapping)",
+    "channels": "plan_signal (sample positions, correction, stages, channel mapping)",
 }
 
 
@@ -199,7 +198,8 @@ def vectorgen_chord_error_mm(svg: str, segs, screen, tolerance_mm: float) -> flo
     """vectorgen's worst chord error in mm: each segment flattened by the engine's own
     flattening (geometry.flatten_table, at the tolerance svg_to_strokes uses for this page),
     its vertices at parameters k / n (Beziers step evenly in t, arcs in angle, as point() does)."""
-    from vectorgen.geometry import fit_transform, flatten_table, segment_table
+    from vectorgen.flatten import flatten_table, segment_table
+    from vectorgen.screen import fit_transform
     from vectorgen.svgsource import page_box, read_svg_tree
 
     scale = abs(fit_transform(page_box(read_svg_tree(svg)), screen)[0][0, 0])

@@ -57,7 +57,7 @@ def soak(seconds: float = 60.0, rate: int = 96000, update_ms: float = 20.0,
 
         from vectorgen import live
         from vectorgen.profile import Profile
-        from vectorgen.render import Renderer, Settings
+        from vectorgen.pipeline import Renderer, Settings
         from vectorgen.scene import FixedSchedule, load_scene
 
         sd = live.sounddevice()
@@ -79,7 +79,7 @@ def soak(seconds: float = 60.0, rate: int = 96000, update_ms: float = 20.0,
             render_ms[0] += ms
             render_ms[1] = max(render_ms[1], ms)
             render_ms[2] += 1
-            return sig
+            return sig, None
 
         producer = live.Producer(player, render, sched)
         producer.prime()            # as `vectorgen play` does: updates due at once made first

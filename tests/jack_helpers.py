@@ -181,18 +181,19 @@ class PlayResult:
 def play_and_record(server: JackServer, args, channels: int, seconds: float,
                     timeout: float = 120.0, env: dict | None = None,
                     interrupt_after: float | None = None, auto_device: bool = True,
-                    command=("play",)) -> PlayResult:
+                    command=("play",), entry: str | None = None) -> PlayResult:
     """Run `python -m vectorgen play ARGS` (or another live `command`) against the server and
     record its output
     (for about `seconds`); `interrupt_after` sends SIGINT (Ctrl-C) that long after the
-    player's ports appeared."""
+    player's ports appeared. `entry`: a script run instead of `-m vectorgen`."""
     args = [str(a) for a in args]
     if auto_device and "--device" not in args:
         # the server's device by name, so that a machine with a sound card of its own (whose
         # device would be PortAudio's default) still plays into the server under test
         args += ["--device", "system JACK Audio"]
     rec = Recorder(server, channels, seconds + 5.0)
-    proc = subprocess.Popen([sys.executable, "-m", "vectorgen", *command, *args],
+    launcher = [entry] if entry is not None else ["-m", "vectorgen"]    # a script may wrap main
+    proc = subprocess.Popen([sys.executable, *launcher, *command, *args],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             env=env or server.env, stdin=subprocess.DEVNULL)
     out = {}

@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from vectorgen.profile import Profile, profile_from_dict
-from vectorgen.render import Renderer, Settings
+from vectorgen.pipeline import Renderer, Settings
 from vectorgen.strokes import strokes_from_polylines
 
 SVG_NS = "http://www.w3.org/2000/svg"

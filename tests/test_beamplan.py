@@ -255,7 +255,7 @@ def test_slow_refresh_is_flagged():
     """The flicker threshold: about 30 Hz (common practice, no source)."""
     frame = render(clock(), refresh=20.0)
     assert frame.report(PROF)["flicker_warning"] is True
-    assert any("flicker" in n for n in frame.notes)
+    assert any("flicker" in n for n in frame.warnings)
     assert render(clock(), refresh=50.0).report(PROF)["flicker_warning"] is False
 
 
@@ -313,7 +313,7 @@ def test_dots_only_frame_warns_of_a_stationary_spot():
     # A still, bright spot burns the phosphor (common practice, no source): a frame that is
     # only dots must say so; a frame with a line in it need not.
     dots = render(polylines([(0.0, 0.0)], [(10.0, 5.0)]))
-    assert any("stationary spot" in n for n in dots.notes)
+    assert any("stationary spot" in n for n in dots.warnings)
     assert dots.plan.drawn_length_mm == 0
     line = render(polylines([(0.0, 0.0)], [(-20.0, 0.0), (20.0, 0.0)]))
-    assert not any("stationary spot" in n for n in line.notes)
+    assert not any("stationary spot" in n for n in line.warnings)

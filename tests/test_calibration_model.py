@@ -13,7 +13,7 @@ from calibration.patterns import make_pattern
 from calibration.sheet import Sheet
 from vectorgen.deflection import DeflectionModel
 from vectorgen.errors import VectorgenError
-from vectorgen.render import Renderer, Settings
+from vectorgen.pipeline import Renderer, Settings
 from vectorgen.strokes import strokes_from_polylines
 
 

@@ -14,7 +14,8 @@ from hypothesis import strategies as st
 from scipy.integrate import quad
 
 from render_helpers import polylines, render, write_svg
-from vectorgen.geometry import MAX_TURN_DEG, clip_to_screen, flatten_arcs, flatten_beziers
+from vectorgen.clip import clip_to_screen
+from vectorgen.flatten import MAX_TURN_DEG, flatten_arcs, flatten_beziers
 from vectorgen.profile import Profile, Screen
 from vectorgen.svgsource import svg_to_strokes
 

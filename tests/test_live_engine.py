@@ -13,7 +13,7 @@ from scipy.signal.windows import hann
 from vectorgen.errors import VectorgenError
 from vectorgen.live import Player, park_levels, ramp, ramp_weights
 from vectorgen.profile import Output
-from vectorgen.signal import from_channels
+from vectorgen.channels import ChannelMap
 
 RATE = 48000
 
@@ -157,7 +157,7 @@ def test_park_is_the_centre_blanked_in_the_profiles_channel_mapping():
                  z_blank_level=0.2)
     park, zmask = park_levels(out, 3)
     assert zmask.tolist() == [False, True, False]
-    drive, z = from_channels(park[None, :], out, 3)     # undo the mapping independently
+    drive, z = ChannelMap(out, 3).from_channels(park[None, :])     # undo the mapping
     np.testing.assert_array_equal(drive, [[0.0, 0.0]])
     assert z[0] == 0.0                                    # at the blank level: beam off
     assert park[1] == pytest.approx(-0.2)
@@ -179,7 +179,7 @@ def test_priming_makes_the_first_updates_before_the_stream_starts():
 
     def render(k):
         made.append(k)
-        return distinct_frame(k, 300)
+        return distinct_frame(k, 300), None
 
     p = Player(distinct_frame(0, 300), RATE, np.zeros(2, np.float32), np.zeros(2, bool),
                stop_after=RATE)

@@ -18,7 +18,7 @@ from jack_helpers import (align_to_reference, find_frame, play_and_record, summa
 from render_helpers import run_cli
 from vectorgen.live import PARK_HOLD_MS, RAMP_MS, park_levels
 from vectorgen.profile import Profile
-from vectorgen.render import Renderer, Settings
+from vectorgen.pipeline import Renderer, Settings
 from vectorgen.scene import scene_timeline
 
 RATE = 48000
@@ -125,7 +125,7 @@ def test_scene_updates_land_exactly_on_frame_boundaries(jack_server, tmp_path):
         """)
     seconds = 2.0
     renderer = Renderer(Profile(), Settings(rate=RATE))
-    parts = scene_timeline(path, renderer, seconds, [])
+    parts = scene_timeline(path, renderer, seconds)
     reference = np.concatenate([np.tile(f.signal, (n, 1)) for f, n in parts])
     r = play_and_record(jack_server, [path, "--seconds", seconds], 2, seconds)
     assert r.returncode == 0, r.stderr

@@ -19,10 +19,10 @@ from render_helpers import REPO, make_profile, run_cli
 from vectorgen.deflection import DeflectionModel
 from vectorgen.errors import VectorgenError
 from vectorgen.profile import Profile
-from vectorgen.render import Renderer, Settings
+from vectorgen.pipeline import Renderer, Settings
 from vectorgen.scene import (FixedSchedule, WallClockSchedule, as_strokes, hms, load_scene,
                              move, polyline, rotate, scaled, scene_timeline, strokes)
-from vectorgen.signal import from_channels
+from vectorgen.channels import ChannelMap
 
 CLOCK = REPO / "examples" / "clock_scene.py"
 CUBE = REPO / "examples" / "spinning_cube.py"
@@ -40,7 +40,7 @@ def bench_profile():
 def hand_angle(frame, profile, label: str) -> float:
     """Clockwise angle from 12 o'clock (degrees) of a hand's tip, measured on the face from
     the output samples: channels -> drive -> mm through the profile's forward model."""
-    drive, _z = from_channels(frame.signal, profile.output, frame.signal.shape[1])
+    drive, _z = ChannelMap(profile.output, frame.signal.shape[1]).from_channels(frame.signal)
     mm = DeflectionModel.from_profile(profile).drive_to_mm(drive)
     idx = frame.plan.strokes.labels.index(label)
     pts = mm[frame.plan.stroke == idx]
@@ -65,8 +65,8 @@ def test_clock_hands_turn_by_the_right_angle_between_two_times():
     renderer = Renderer(prof, Settings(rate=48000))
     t1 = 10 * 3600 + 10 * 60            # 10:10:00
     t2 = 10 * 3600 + 35 * 60            # 10:35:00, 25 minutes later
-    f1 = scene_timeline(str(CLOCK), renderer, None, [], start=t1)[0][0]
-    f2 = scene_timeline(str(CLOCK), renderer, None, [], start=t2)[0][0]
+    f1 = scene_timeline(str(CLOCK), renderer, None, start=t1)[0][0]
+    f2 = scene_timeline(str(CLOCK), renderer, None, start=t2)[0][0]
     # Common practice, no source: the minute hand turns 360 degrees an hour (6 per minute),
     # the hour hand 360 degrees in 12 hours (0.5 per minute), both clockwise from 12.
     assert angle_diff(hand_angle(f1, prof, "minute hand"),
@@ -82,7 +82,7 @@ def test_clock_hands_turn_by_the_right_angle_between_two_times():
 def test_clock_file_advances_the_second_hand_six_degrees_per_second_of_file():
     prof = Profile()
     renderer = Renderer(prof, Settings(rate=48000))
-    parts = scene_timeline(str(CLOCK), renderer, 5.0, [])
+    parts = scene_timeline(str(CLOCK), renderer, 5.0)
     start = 10 * 3600 + 9 * 60 + 52          # the example's START_TIME "10:09:52"
     pos = 0
     seen = []
@@ -106,7 +106,7 @@ def test_rendering_a_scene_file_is_reproducible_and_equals_the_timeline(tmp_path
     rate, data = wavfile.read(a)                      # scipy's reader, not ours
     assert rate == 48000 and data.dtype == np.float32 and data.shape[1] == 3
     renderer = Renderer(Profile(), Settings(rate=48000, channels=3))
-    parts = scene_timeline(str(CLOCK), renderer, 3.0, [])
+    parts = scene_timeline(str(CLOCK), renderer, 3.0)
     np.testing.assert_array_equal(data, np.concatenate([np.tile(f.signal, (n, 1))
                                                         for f, n in parts]))
 
@@ -123,7 +123,7 @@ def test_each_update_goes_on_at_the_first_boundary_after_its_time(tmp_path):
             return [[(k, -20.0)], [(-30.0, 0.0), (-30.0 + 3 * (k % 5) + 1, 25.0)]]
         """)
     renderer = Renderer(Profile(), Settings(rate=48000))
-    parts = scene_timeline(path, renderer, 2.0, [])
+    parts = scene_timeline(path, renderer, 2.0)
     pos, last_k = 0, -1
     for frame, reps in parts:
         dot = frame.plan.strokes.labels.index("scene polyline")   # first polyline: the dot
@@ -144,7 +144,7 @@ def test_scene_without_seconds_gives_one_frame_at_start_time(tmp_path):
         def draw(t):
             return [(t - 3723.5, 0.0), (10.0, 10.0)]
         """)
-    parts = scene_timeline(path, Renderer(Profile(), Settings()), None, [])
+    parts = scene_timeline(path, Renderer(Profile(), Settings()), None)
     assert len(parts) == 1 and parts[0][1] == 1
     assert parts[0][0].plan.points[:, 0].min() == pytest.approx(0.0, abs=1e-9)
 
