@@ -27,6 +27,8 @@ if str(HERE.parent) not in sys.path:
 
 from jack_helpers import JACKD, JackServer  # noqa: E402
 
+import shapes  # noqa: E402,F401  (registers the built-in shapes the scenes use)
+
 CUBE = HERE.parent / "examples" / "spinning_cube.py"
 
 

@@ -10,6 +10,11 @@ import pytest
 
 from jack_helpers import JACKD, JackServer
 
+# the command line registers the built-in shapes and stroke font when it reads a source; the
+# library-level tests (scenes that call clock() or text()) register them here, as a library
+# user would
+import shapes  # noqa: E402,F401
+
 
 @pytest.fixture(scope="session")
 def jack_server():

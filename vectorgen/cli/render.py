@@ -30,14 +30,8 @@ def add_output_arguments(parser) -> None:
     g.add_argument("--keep-order", action="store_true",
                    help="draw strokes in source order (default: ordered for short blanked moves)")
     g.add_argument("--order", default=None, metavar="STRATEGY",
-                   help="stroke ordering strategy: " + ", ".join(_orderings())
-                   + " (default greedy; --keep-order = input)")
-
-
-def _orderings() -> list:
-    from ..beamplan import ORDERINGS
-
-    return ORDERINGS.names()
+                   help="stroke ordering strategy by name: greedy (default), input (= "
+                   "--keep-order); an unknown name lists every one")
 
 
 def load_setup(args, stages=()):
