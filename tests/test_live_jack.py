@@ -298,7 +298,8 @@ def test_a_name_matching_two_devices_fails_in_one_line(jack_server):
     (("--device", "no such card"), r"no output device matches 'no such card': run "
                                    r"'vectorgen devices'"),
     (("--device", "9"), r"there is no output device number 9: run 'vectorgen devices'"),
-    (("--rate", "96000"), r"cannot play 2 channels at 96000 Hz .*try --rate 48000"),
+    (("--rate", "96000"), r"cannot play 2 channels at 96000 Hz .*try a rate of 48000 Hz "
+                          r"\(option --rate\)"),
 ])
 def test_bad_device_choices_fail_in_one_line(jack_server, args, pattern):
     import subprocess

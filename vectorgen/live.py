@@ -102,7 +102,7 @@ def output_devices() -> list[Device]:
 
 
 def find_device(spec: str | int | None) -> Device:
-    """The output device given by --device: None (the default), an index, or a case-insensitive
+    """The output device given by `spec`: None (the default), an index, or a case-insensitive
     part of the name (several space-separated parts match in order, as sounddevice does)."""
     sd = sounddevice()
     devices = output_devices()
@@ -111,7 +111,7 @@ def find_device(spec: str | int | None) -> Device:
     if spec is None:
         chosen = [d for d in devices if d.default]
         if not chosen:
-            raise DeviceError(f"there is no default output device: choose one with --device "
+            raise DeviceError(f"there is no default output device: choose one by number or name "
                                  f"({SEE_DEVICES})")
         return chosen[0]
     text = str(spec).strip()
@@ -149,15 +149,16 @@ def check_device(device: Device, channels: int, rate: int) -> None:
     sd = sounddevice()
     if channels > device.channels:
         raise DeviceError(f"{device.describe()} has {device.channels} output channel(s); "
-                             f"the signal needs {channels} (use --channels 2, or another device)")
+                          f"the signal needs {channels} (use 2 channels, or another device)",
+                          parameter="channels")
     try:
         sd.check_output_settings(device=device.index, channels=channels, dtype="float32",
                                  samplerate=rate)
     except (sd.PortAudioError, ValueError) as exc:
         hint = "" if int(device.rate) == rate else (f"; its default rate is {device.rate:g} Hz, "
-                                                    f"try --rate {device.rate:g}")
+                                                    f"try a rate of {device.rate:g} Hz")
         raise DeviceError(f"{device.describe()} cannot play {channels} channels at {rate} Hz "
-                             f"({_one_line(exc)}){hint}") from None
+                          f"({_one_line(exc)}){hint}", parameter="rate") from None
 
 
 def _one_line(exc) -> str:
