@@ -17,7 +17,7 @@ import json
 import math
 import os
 
-from ..errors import InputError, VectorgenError
+from ..errors import VectorgenError
 
 TERMS = ("auto", "gains", "affine", "full")
 SHOW_NAMES = 8

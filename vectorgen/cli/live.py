@@ -101,8 +101,6 @@ def scene_updates(scene, renderer, schedule, first_frame):
 def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) -> int:
     """Print the cautions, run the stream until it ends (--seconds, Ctrl-C, SIGTERM or an error),
     park, print the summary line; raise the producer's or the callback's error as one line."""
-    from .. import live
-
     for line in CAUTIONS:
         print(f"vectorgen: {line}", file=sys.stderr)
 
