@@ -535,3 +535,15 @@ def test_bad_values_raise_one_line_errors_naming_the_parameter():
         balance_dwell([1.0, 1.0], 10, 0.0)
     with pytest.raises(InputError, match=r"factor"):
         oversample_periodic(np.zeros(4), 1.5)
+
+
+def test_the_stored_jump_shapes_are_the_designed_ones():
+    # the table a render reads (vectorgen/data/jump_shapes.json) must be the solution of the
+    # linear programs the shapes are defined by (scipy.optimize.linprog, HiGHS)
+    from vectorgen import interface
+
+    stored = interface._stored_steps()
+    assert sorted(stored) == list(range(1, interface.MAX_MOVE_SAMPLES + 1))
+    for m, (steps, err) in stored.items():
+        d_steps, d_err = interface.design_steps(m)
+        assert np.allclose(steps, d_steps, atol=1e-9) and abs(err - d_err) < 1e-9, m

@@ -15,7 +15,8 @@ from .deflection import DeflectionModel
 from .errors import FullScaleError
 from .stages import StageChain
 
-__all__ = ["FULL_SCALE_SLACK", "correct", "check_full_scale", "plan_signal", "CHUNK"]
+__all__ = ["FULL_SCALE_SLACK", "correct", "check_full_scale", "check_true_peak",
+           "inter_sample_peaks", "plan_signal", "CHUNK"]
 
 FULL_SCALE_SLACK = 1e-9
 CHUNK = 1 << 14        # samples corrected at a time by plan_signal
@@ -46,6 +47,59 @@ def check_full_scale(drive: np.ndarray, plan) -> np.ndarray:
                              f"{_where(plan, i)}: the profile's deflection cannot reach that "
                              f"point (shrink the drawing or the usable area)")
     return np.clip(drive, -1.0, 1.0)   # removes only the FULL_SCALE_SLACK rounding
+
+
+TP_TAPS = 12            # input samples either side in the 4x interpolator (BS.1770-4 uses 48 taps)
+TP_SCREEN = 0.75        # a sample this far below full scale cannot see an overshoot past it
+_TP_PHASES = None
+
+
+def _tp_phases() -> np.ndarray:
+    """(2 TP_TAPS, 3) Kaiser-windowed sinc weights of the three in-between points of a 4x
+    oversampling interpolator (t = 1/4, 1/2, 3/4 of the way from sample k to k + 1)."""
+    global _TP_PHASES
+    if _TP_PHASES is None:
+        k = np.arange(-TP_TAPS + 1, TP_TAPS + 1)          # neighbours k - 11 .. k + 12
+        t = np.array([0.25, 0.5, 0.75])
+        x = t[None, :] - k[:, None]
+        w = np.kaiser(4 * TP_TAPS + 1, 8.0)
+        win = np.interp(x, np.linspace(-TP_TAPS, TP_TAPS, len(w)), w)
+        _TP_PHASES = np.sinc(x) * win
+    return _TP_PHASES
+
+
+def inter_sample_peaks(drive: np.ndarray) -> tuple[float, int, int]:
+    """The largest |value| of a looping frame's band-limited path between its samples, as a
+    4x interpolator sees it (ITU-R BS.1770-4 Annex 2 measures true peak so), looked at only
+    around samples above TP_SCREEN of full scale (the rest cannot reach it). Returns (peak,
+    sample index, axis)."""
+    n = len(drive)
+    a = np.abs(drive)
+    near = np.flatnonzero((a > TP_SCREEN).any(axis=1))
+    if not near.size or n < 2:
+        return (float(a.max()) if a.size else 0.0), 0, 0
+    # every gap k -> k + 1 next to a high sample (one each side)
+    gaps = np.unique(np.concatenate([near - 1, near]) % n)
+    idx = (gaps[:, None] + np.arange(-TP_TAPS + 1, TP_TAPS + 1)[None, :]) % n
+    best, at, axis = 0.0, 0, 0
+    h = _tp_phases()
+    for ax in range(drive.shape[1]):
+        v = np.abs(drive[idx, ax] @ h)                  # (g, 3)
+        j = int(np.argmax(v.max(axis=1)))
+        if v[j].max() > best:
+            best, at, axis = float(v[j].max()), int(gaps[j]), ax
+    return max(best, float(a.max())), at, axis
+
+
+def check_true_peak(drive: np.ndarray, plan) -> None:
+    """A `FullScaleError` when the band-limited path of a looping frame (what an audio
+    interface's reconstruction filter makes of it) goes beyond full scale between samples."""
+    peak, i, axis = inter_sample_peaks(drive)
+    if peak > 1.0 + 1e-6:
+        raise FullScaleError(f"true peak {'xy'[axis]} = {peak:.4f} is beyond full scale between "
+                             f"samples {_where(plan, i)}: the interface's low-pass would "
+                             f"overshoot (shrink the drawing or the usable area, or lower the "
+                             f"writing speed)")
 
 
 def _where(plan, i: int) -> str:

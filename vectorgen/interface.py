@@ -608,7 +608,33 @@ def _shortest_move(ok) -> int | None:
 
 @functools.lru_cache(maxsize=None)
 def _step_design(move: int) -> tuple[np.ndarray, float]:
-    """(steps, design error e) of the shaped move of `move` samples (see `jump_shape`)."""
+    """(steps, design error e) of the shaped move of `move` samples: the stored solution
+    (`vectorgen/data/jump_shapes.json`, so a render needs no solver), else `design_steps`."""
+    stored = _stored_steps().get(move)
+    if stored is not None:
+        return stored
+    return design_steps(move)
+
+
+@functools.lru_cache(maxsize=1)
+def _stored_steps() -> dict:
+    import json
+    import os
+
+    path = os.path.join(os.path.dirname(__file__), "data", "jump_shapes.json")
+    try:
+        with open(path, encoding="utf-8") as fh:
+            data = json.load(fh)
+    except (OSError, ValueError):
+        return {}
+    if data.get("quiet_from") != QUIET_FROM:
+        return {}
+    return {int(k): (np.array(v["steps"], dtype=float), float(v["design_error"]))
+            for k, v in data["moves"].items()}
+
+
+def design_steps(move: int) -> tuple[np.ndarray, float]:
+    """(steps, design error e) of the shaped move of `move` samples, solved (see `jump_shape`)."""
     if move == 1:
         steps = np.ones(1)
         return steps, _held_error(steps)

@@ -14,18 +14,54 @@ from functools import cached_property
 
 import numpy as np
 
-from .beamplan import ORDERINGS, Plan, Timing, plan_frame
+from .beamplan import ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, plan_frame
 from .channels import ChannelMap
 from .clip import clip_parts
-from .correction import check_full_scale, plan_signal
+from .correction import check_full_scale, check_true_peak, inter_sample_peaks, plan_signal
 from .deflection import DeflectionModel
-from .errors import InputError, VectorgenWarning
+from .errors import FullScaleError, InputError, VectorgenWarning
 from .stages import Stage, StageChain
 from .strokes import Strokes, check_finite
 
-__all__ = ["MAX_RATE", "Settings", "Frame", "Renderer", "report_line"]
+__all__ = ["MAX_RATE", "Settings", "Frame", "Renderer", "report_line", "stages_for"]
 
 MAX_RATE = 10_000_000
+JUMP_DRIVE_LIMIT = 0.95      # a lagging deflection's jumps leave headroom for the interface
+LIT_DRIVE_LIMIT = 0.9        # strokes slow down where their compensated drive would pass this
+                             # (the rest is headroom for the ringing of a sudden start or stop)
+BALANCE_REACHES = (0.9, 0.7, 0.5, 0.35, 0.25)
+
+
+def stages_for(profile, response=None) -> list:
+    """The signal stages a profile's hardware needs: AC-coupling compensation for
+    `[output] highpass_hz`, lag compensation for `[response]` (or `[drive]`'s L / R)."""
+    stages = []
+    if profile.output.highpass_hz > 0:
+        from .interface import ACCoupling
+
+        stages.append(ACCoupling(profile.output.highpass_hz))
+    response = profile.response_model() if response is None else response
+    if response.order > 0:
+        from .response import LagCompensation
+
+        stages.append(LagCompensation(response))
+    return stages
+
+
+def _r(v):
+    return [round(float(e), 6) for e in np.ravel(v)] if np.ndim(v) else round(float(v), 6)
+
+
+def _drive_report(needs: dict, reach: dict) -> dict:
+    out = {}
+    for k, v in needs.items():
+        if isinstance(v, np.ndarray) and v.ndim == 1 and len(v) == 2:
+            out[k] = _r(v)
+        elif isinstance(v, (int, float)):
+            out[k] = _r(v)
+    out["deflection_fraction"] = _r(reach["deflection_fraction"])
+    out["speed_fraction"] = _r(reach["speed_fraction"])
+    return out
 
 
 @dataclass
@@ -46,6 +82,16 @@ class Settings:
         Fit each frame into exactly this many samples (a waveform generator's memory).
     ordering : str
         Stroke ordering strategy by name (``"greedy"``, ``"input"``).
+    compensate : bool
+        Make the picture right at the spot for the profile's interface and response: shaped
+        jumps, the compensation stages, frame balancing. False renders as for ideal hardware
+        (to see what compensation does).
+    balance : bool
+        With an AC-coupled output, balance every frame to zero mean by a blanked dwell (False:
+        leave the picture to shift by the frame's mean).
+    slow_to_fit : bool
+        When `[drive]` cannot make the frame at this writing speed, slow down to fit instead
+        of refusing.
     """
 
     rate: int = 48000
@@ -54,6 +100,9 @@ class Settings:
     refresh: float | None = None
     frame_samples: int | None = None
     ordering: str = "greedy"
+    compensate: bool = True
+    balance: bool = True
+    slow_to_fit: bool = False
 
     def check(self) -> None:
         """Raise `InputError` (naming the parameter) for an impossible setting."""
@@ -108,6 +157,7 @@ class Frame:
         self.rate = rate
         self.clipped_strokes = clipped_strokes
         self.warnings: list[str] = []
+        self.extra: dict = {}           # interface and drive figures for the report
         self._renderer = renderer
         self._given_drive = drive
         self._peak = peak_drive
@@ -164,6 +214,11 @@ class Frame:
         stages = self._renderer.chain.report()
         if stages:
             rep["stages"] = stages
+        rep.update(self.extra)
+        if self._renderer.chain and len(self.drive):
+            c = float(np.abs(self.corrected).max())
+            rep["compensation_peak_boost"] = _r(float(np.abs(self.drive).max()) / c if c else 1.0)
+        rep["jump_samples"] = int(p.jump_samples)
         if profile.output.volts_full_scale:
             rep["peak_volts"] = round(peak * profile.output.volts_full_scale, 6)
         return rep
@@ -198,7 +253,7 @@ class Renderer:
     (['x', 'y', 'z'], 3, True)
     """
 
-    def __init__(self, profile, settings: Settings, stages=()):
+    def __init__(self, profile, settings: Settings, stages=None):
         settings.check()
         self.profile = profile
         self.settings = settings
@@ -206,12 +261,69 @@ class Renderer:
         self.channels = settings.channels or profile.output.channels
         self.model = DeflectionModel.from_profile(profile)
         self.timing = Timing.from_beam(profile.beam, self.rate, settings.speed)
-        self.chain = StageChain(stages)
+        self.response = profile.response_model()
+        # the hardware after the jack, as stages (the preview runs samples through their
+        # models); compensation applies them
+        self.hardware_chain = StageChain(stages_for(profile, self.response) if stages is None
+                                         else stages)
+        self.chain = self.hardware_chain if settings.compensate else StageChain()
         self.cmap = ChannelMap(profile.output, self.channels)
+        self.jumps = self._jump_model()
+        self.speed_cap = self._speed_cap() if settings.compensate else None
         if settings.refresh is not None:
             self.target = max(1, int(round(self.rate / settings.refresh)))
         else:
             self.target = settings.frame_samples
+
+    def _jump_model(self):
+        out = self.profile.output
+        t = self.timing
+        if not self.settings.compensate:
+            return t.jumps
+        if self.response.order > 0:
+            return LagJumps(self.response, self.model, JUMP_DRIVE_LIMIT, self.rate,
+                            self.profile.beam.spot_mm, t.settle)
+        if out.band_limited:
+            return ShapedJumps(t.jump_step_mm, t.settle)
+        return t.jumps
+
+    def _speed_cap(self):
+        """The largest point spacing per piece for which a lagging deflection's compensated
+        drive stays within LIT_DRIVE_LIMIT (None for an ideal response)."""
+        if self.response.order == 0:
+            return None
+        model, rate, resp = self.model, self.rate, self.response
+        inv = np.linalg.inv(model.matrix)
+
+        lag = np.asarray(resp.lag_s, dtype=float)
+
+        def axis_speed(u, d):
+            """Largest speed (FS/s) along unit directions d at drive u for which
+            u + lag du/dt stays within the limit: LIT_DRIVE_LIMIT, or half-way from |u| to
+            full scale where a stroke lies further out already."""
+            limit = np.maximum(LIT_DRIVE_LIMIT, np.abs(u) + (1.0 - np.abs(u)) / 2)
+            room = np.maximum(limit - np.sign(d) * u, 0.0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                s = np.where((np.abs(d) > 0) & (lag > 0), room / (lag * np.abs(d)), np.inf)
+            return s.min(axis=1)
+
+        def cap(px, py, a, b):
+            # each segment's speed limit at both its ends, travelling along it; a piece's
+            # limit is the least over its segments a .. b - 1
+            u = model.drive_from_xy(px, py)
+            d_mm = np.column_stack([np.diff(px), np.diff(py)])
+            d_fs = d_mm @ inv.T
+            norm_mm = np.hypot(*d_mm.T)
+            fs_per_mm = np.hypot(*d_fs.T) / np.maximum(norm_mm, 1e-300)
+            unit = d_fs / np.maximum(np.hypot(*d_fs.T), 1e-300)[:, None]
+            lim = np.minimum(axis_speed(u[:-1], unit), axis_speed(u[1:], unit))
+            mm_s = np.where((fs_per_mm > 0) & (norm_mm > 0),
+                            lim / np.maximum(fs_per_mm, 1e-300), np.inf)
+            mm_s = np.append(mm_s, np.inf)
+            bounds = np.column_stack([a, b]).ravel()
+            per_piece = np.minimum.reduceat(mm_s, bounds)[::2]
+            return np.maximum(per_piece, 1e-6) / rate
+        return cap
 
     def frame(self, strokes: Strokes) -> Frame:
         """Render one frame of `strokes` (mm).
@@ -228,10 +340,31 @@ class Renderer:
         if clipped.count == 0:
             raise InputError("nothing to draw: the drawing lies wholly outside the usable "
                              "area of the screen")
-        plan = plan_frame(clipped, self.timing, self.target, self.settings.ordering)
+        plan = plan_frame(clipped, self.timing, self.target, self.settings.ordering,
+                          self.jumps, self.speed_cap if self.target is None else None)
         del clipped
+        notes: list[str] = []
+        extra: dict = {}
+        if self.balancing:
+            plan = self._balanced(plan, notes, extra)
+        elif self.profile.output.highpass_hz > 0:
+            shift = self.model.matrix @ self.model.drive_from_xy(plan.x, plan.y).mean(axis=0)
+            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(-shift)}
+            notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
+                         f"({-shift[0]:.2f}, {-shift[1]:.2f}) mm (balancing is off)")
         signal, peak, drive = plan_signal(plan, self.model, self.chain, self.cmap, self.rate)
+        if self.chain and not self.chain.pointwise or self.checks_true_peak:
+            drive = drive if drive is not None else check_full_scale(
+                self.chain.frame(self.model.drive_from_xy(plan.x, plan.y), self.rate), plan)
+        if self.checks_true_peak:
+            check_true_peak(drive, plan)
+            extra["true_peak"] = _r(inter_sample_peaks(drive)[0])
+        if self.z_shift and self.cmap.has_z:
+            self._delay_z(signal, plan)
         frame = Frame(signal, self.cmap.names, plan, self.rate, self, drive, peak, n_clipped)
+        frame.extra = extra
+        frame.warnings.extend(notes)
+        self._check_drive(frame)
         if n_clipped:
             frame.warnings.append(f"{n_clipped} stroke(s) cut at the edge of the usable area")
         if plan.drawn_length_mm == 0:
@@ -245,6 +378,113 @@ class Renderer:
         for w in frame.warnings:
             warnings.warn(w, VectorgenWarning, stacklevel=2)
         return frame
+
+    # -- the interface: true peak, balancing, Z timing ---------------------------------------
+    @property
+    def checks_true_peak(self) -> bool:
+        return bool(self.settings.compensate and self.profile.output.band_limited)
+
+    @property
+    def balancing(self) -> bool:
+        return bool(self.settings.compensate and self.settings.balance
+                    and self.profile.output.highpass_hz > 0)
+
+    @property
+    def z_shift(self) -> float:
+        """Samples by which Z is sent early, so that it acts in step with X/Y."""
+        if not self.settings.compensate:
+            return 0.0
+        return self.profile.output.z_delay_us * 1e-6 * self.rate
+
+    def _delay_z(self, signal: np.ndarray, plan) -> None:
+        """Send Z early by the Z path's delay: band-limited (fractional) for an audio interface,
+        to the nearest sample for an output that holds each sample."""
+        z = self.cmap.z_level(plan.intensity, plan.lit)
+        if self.profile.output.band_limited:
+            from .interface import fractional_delay
+
+            z = fractional_delay(z[:, None], -self.z_shift)[:, 0]
+            lo, hi = sorted((self.cmap.z_level(np.zeros(1), np.zeros(1, bool))[0],
+                             self.cmap.z_level(np.ones(1), np.ones(1, bool))[0]))
+            z = np.clip(z, lo, hi)      # (Z is brightness: its ringing is cut, not the drive's)
+        else:
+            z = np.roll(z, -int(round(self.z_shift)))
+        self.cmap.write_z(signal, z.astype(np.float32))
+
+    def _balanced(self, plan, notes: list, extra: dict):
+        """The plan with a blanked balancing excursion at the end of the frame, so that the
+        frame's drive has zero mean and an AC-coupled output passes it whole: a jump from the
+        first stroke's start to a point p, a dwell of m samples there, the jump back and a
+        settle. p and m: the fewest samples within a reach that keeps the compensated drive
+        within full scale (reaches tried from far to near)."""
+        from .interface import balance_dwell
+
+        corrected = self.model.drive_from_xy(plan.x, plan.y)
+        total = corrected.sum(axis=0)
+        s0 = corrected[0]
+        s0_mm = np.array([plan.positions(0, 1)[0][0], plan.positions(0, 1)[1][0]])
+        settle = self.timing.settle
+        last_err = None
+        for reach in BALANCE_REACHES:
+            T = 0
+            for _ in range(8):
+                m, p = balance_dwell(total + settle * s0, plan.samples, (reach, reach),
+                                     jump_samples=T, start=s0)
+                p_mm = self.model.drive_to_mm(p[None, :])
+                T_new = int(self.jumps.moves(s0_mm[None, :], p_mm)[0])
+                if T_new <= T:
+                    break
+                T = T_new
+            there = self.jumps.path(s0_mm[None, :], p_mm, np.array([T]))
+            back = self.jumps.path(p_mm, s0_mm[None, :], np.array([T]))
+            tail = np.vstack([there[:T], np.repeat(p_mm, m + (T - len(there[:T])), axis=0),
+                              back, np.repeat(s0_mm[None, :], settle, axis=0)])
+            trial = plan.with_tail(tail, 2, 2 * float(np.hypot(*(p_mm[0] - s0_mm))))
+            try:
+                final = check_full_scale(self.chain.frame(
+                    self.model.drive_from_xy(trial.x, trial.y), self.rate), trial)
+                if self.checks_true_peak:
+                    check_true_peak(final, trial)
+            except FullScaleError as exc:
+                last_err = exc
+                continue
+            resid = self.model.matrix @ self.model.drive_from_xy(trial.x, trial.y).mean(axis=0)
+            extra["balance"] = {"dwell_samples": int(m), "point_mm": _r(p_mm[0]),
+                                "reach": reach, "cost_samples": int(len(tail)),
+                                "cost_fraction": round(len(tail) / plan.samples, 6),
+                                "residual_shift_mm": _r(-resid)}
+            if not self.cmap.has_z:
+                notes.append(f"without a Z channel the frame-balancing move to "
+                             f"({p_mm[0, 0]:.1f}, {p_mm[0, 1]:.1f}) mm shows as a line; to move "
+                             f"the picture instead turn balancing off (it would shift by "
+                             f"{self._shift_text(corrected)})")
+            return trial
+        raise last_err
+
+    def _shift_text(self, corrected) -> str:
+        shift = -(self.model.matrix @ corrected.mean(axis=0))
+        return f"({shift[0]:.2f}, {shift[1]:.2f}) mm"
+
+    # -- the drive, physically ---------------------------------------------------------------
+    def _check_drive(self, frame) -> None:
+        """With `[drive]`: refuse (numbers in the message) a frame the amplifier cannot make,
+        and record its peak volts and amps in the report."""
+        drive = self.profile.drive_model()
+        if drive is None:
+            return
+        needs = drive.needs(frame.corrected, self.rate)
+        reach = drive.reach(needs)
+        frame.extra["drive"] = _drive_report(needs, reach)
+        if reach["deflection"] >= 1.0 - 1e-9:
+            return
+        lines = drive.verdict_lines(needs)
+        if self.settings.slow_to_fit and reach["speed"] > 0:
+            frame.warnings.append("; ".join(lines) + f": writing at {reach['speed']:.0%} of the "
+                                  "speed would fit")
+            frame.extra["drive"]["slow_to_fit"] = round(reach["speed"], 6)
+            return
+        raise FullScaleError("; ".join(lines) + " (or ask to slow down to fit)",
+                             parameter="slow_to_fit")
 
     @property
     def switches_matter(self) -> bool:

@@ -32,6 +32,9 @@ class Output:
     z_polarity: str = "positive"
     z_blank_level: float = 0.0
     volts_full_scale: float = 0.0  # 0 = unknown
+    band_limited: bool = True       # anti-imaging low-pass near Nyquist (audio interfaces)
+    highpass_hz: float = 0.0        # first-order AC-coupling corner; 0 = DC-coupled
+    z_delay_us: float = 0.0         # how much later the Z path acts than X/Y
 
     def channel_order(self, channels: int | None = None) -> list[str]:
         """Which signal each interface channel carries, for `channels` channels (2 or 3)."""
@@ -70,6 +73,7 @@ class Beam:
     dot_dwell_us: float = 250.0
     chord_tolerance_mm: float = 0.02
     flicker_hz: float = 30.0
+    spot_mm: float = 0.3                    # spot size: how close a settle must come
 
 
 @dataclass
@@ -79,10 +83,28 @@ class Profile:
     output: Output = field(default_factory=Output)
     deflection: Deflection = field(default_factory=Deflection)
     beam: Beam = field(default_factory=Beam)
+    response: dict = field(default_factory=dict)    # [response]: see vectorgen.response
+    drive: dict = field(default_factory=dict)       # [drive]: see vectorgen.response.Drive
     source: str = "<built-in>"
 
     def copy(self) -> "Profile":
         return copy.deepcopy(self)
+
+    def response_model(self):
+        """The deflection response of `[response]` (or of `[drive]`'s L / R for a yoke driven
+        by a voltage amplifier): a `vectorgen.response.Response`, ideal when neither is given."""
+        from .response import Drive, Response
+
+        measured = Response.from_table(self.response) if self.response else None
+        if self.drive:
+            return Drive.from_table(self.drive).spot_response(measured)
+        return measured if measured is not None else Response.from_table({})
+
+    def drive_model(self):
+        """The `[drive]` table as a `vectorgen.response.Drive`, or None when not given."""
+        from .response import Drive
+
+        return Drive.from_table(self.drive) if self.drive else None
 
 
 # --- schema -------------------------------------------------------------------------------------
@@ -170,6 +192,11 @@ SCHEMA = {
         "z_polarity": (str, _one_of("positive", "negative")),
         "z_blank_level": (float, lambda v: None if -1 <= v <= 1 else "must be between -1 and 1"),
         "volts_full_scale": (float, _non_negative),
+        "band_limited": (bool, None),
+        "highpass_hz": (float, lambda v: None if 0 <= v <= 1000 and math.isfinite(v)
+                        else "must be between 0 (DC-coupled) and 1000 Hz"),
+        "z_delay_us": (float, lambda v: None if abs(v) <= 10000 and math.isfinite(v)
+                       else "must be between -10000 and 10000 us"),
     }),
     "deflection": (Deflection, {
         "kind": (str, _one_of(*DEFLECTION_KINDS)),
@@ -191,8 +218,25 @@ SCHEMA = {
         "dot_dwell_us": (float, _non_negative),
         "chord_tolerance_mm": (float, _positive),
         "flicker_hz": (float, _non_negative),
+        "spot_mm": (float, _positive),
     }),
 }
+
+
+def _check_response(table: dict, where: str) -> None:
+    from .response import Response
+
+    Response.from_table(table, where)
+
+
+def _check_drive(table: dict, where: str) -> None:
+    from .response import Drive
+
+    Drive.from_table(table, where)
+
+
+# Tables checked by the model that reads them (values may be one number or [x, y] per axis).
+FREE_TABLES = {"response": _check_response, "drive": _check_drive}
 
 
 def _typed(where: str, value, kind):
@@ -216,8 +260,14 @@ def profile_from_dict(data: dict, source: str = "<dict>") -> Profile:
         if key == "name":
             prof.name = _typed(f"{source}: key 'name'", value, str)
             continue
+        if key in FREE_TABLES:
+            if not isinstance(value, dict):
+                raise ProfileError(f"{source}: '{key}' must be a table [{key}]")
+            FREE_TABLES[key](value, f"{source}: [{key}]")       # validates, naming the key
+            setattr(prof, key, dict(value))
+            continue
         if key not in SCHEMA:
-            known = ", ".join(["name"] + [f"[{k}]" for k in SCHEMA])
+            known = ", ".join(["name"] + [f"[{k}]" for k in [*SCHEMA, *FREE_TABLES]])
             raise ProfileError(f"{source}: unknown key '{key}' (known: {known})")
         cls, fields = SCHEMA[key]
         if not isinstance(value, dict):
@@ -289,6 +339,9 @@ def profile_to_dict(prof: Profile) -> dict:
                 continue
             table[sub] = v
         out[key] = table
+    for key in FREE_TABLES:
+        if getattr(prof, key):
+            out[key] = dict(getattr(prof, key))
     return out
 
 

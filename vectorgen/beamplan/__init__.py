@@ -23,13 +23,13 @@ from ..errors import InputError
 from ..strokes import Strokes
 from .budget import apportion, piece_steps
 from .dwell import dwells, turn_deg
-from .jumps import StraightJumps
+from .jumps import LagJumps, ShapedJumps, StraightJumps
 from .layout import CHUNK, GAP, Layout, arc_axis
 from .ordering import ORDERINGS, greedy_order, input_order, register_ordering
 from .plan import Plan
 from .timing import Timing
 
-__all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "Plan", "StraightJumps", "Timing", "apportion",
+__all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "LagJumps", "Plan", "ShapedJumps", "StraightJumps", "Timing", "apportion",
            "greedy_order", "input_order", "plan_frame", "register_ordering",
            "turn_deg", "CHUNK", "GAP"]
 
@@ -37,7 +37,7 @@ MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is
 
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
-               ordering: str = "greedy") -> Plan:
+               ordering: str = "greedy", jumps=None, speed_cap=None) -> Plan:
     """The beam plan for one frame.
 
     Parameters
@@ -50,6 +50,13 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         Fit the frame into exactly this many samples (None: free-running at the writing speed).
     ordering : str
         Name of the ordering strategy in `ORDERINGS` (``"greedy"``, ``"input"``, ...).
+    jumps : jump model, optional
+        How blanked jumps move (`jumps.StraightJumps`, `ShapedJumps`, `LagJumps`); default the
+        timing's straight jumps.
+    speed_cap : callable, optional
+        ``speed_cap(px, py, piece_first, piece_last) -> (P,) spacing_mm``: the largest point
+        spacing each piece may be drawn at (the drive's limits); pieces whose writing speed
+        would need more drive than is left get more steps.
 
     Returns
     -------
@@ -72,7 +79,7 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     if strokes.count == 0:
         raise InputError("nothing to draw: the drawing is empty (or wholly off the screen)")
     strategy = ORDERINGS[ordering]
-    jumps = timing.jumps
+    jumps = timing.jumps if jumps is None else jumps
     px, py, offs, stroke_intensity, drawn = _ordered(strokes, strategy, jumps)
     S = len(offs) - 1
     first, last = offs[:-1], offs[1:] - 1
@@ -103,12 +110,16 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     jump_from = np.column_stack([px[last], py[last]])
     jump_to = np.column_stack([px[first[nxt]], py[first[nxt]]])
     jump_len = np.hypot(*(jump_to - jump_from).T)
-    move = jumps.move_samples(jump_len)
+    move = jumps.moves(jump_from, jump_to)
     settles = jumps.settle_samples(move)
 
     fixed = int(start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
     piece_n, start_rep = piece_steps(piece_len, timing.spacing_mm, target_samples, fixed,
                                      start_rep)
+    if speed_cap is not None and len(piece_len):
+        # the drive's limits: a piece may need more steps than the writing speed gives it
+        cap = speed_cap(px, py, a, b)
+        piece_n = np.maximum(piece_n, np.ceil(piece_len / cap - 1e-9).astype(np.int64))
     n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
     if n_total > MAX_FRAME_SAMPLES:
         raise InputError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f}"
@@ -121,7 +132,8 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
                 moving_samples=int(piece_n.sum()),
                 blanked_moves=int((move > 0).sum()),
                 blanked_length_mm=float(jump_len.sum()),
-                corners=int(sharp.sum() + closed_sharp.sum()))
+                corners=int(sharp.sum() + closed_sharp.sum()),
+                jump_samples=int(move.sum()))
 
 
 def _ordered(strokes, strategy, jumps):
@@ -186,15 +198,16 @@ def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_r
     runs = np.column_stack([lit_count, blank_size]).ravel()
     lit = np.repeat(np.tile(np.array([True, False]), S), runs)
 
-    # Blanked samples: the jump's move, then the settle at the destination.
+    # Blanked samples: the jump's move (the jump model's path), then the settle at the
+    # destination.
     blank_total = int(blank_size.sum())
     kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
-    frac = jumps.fractions(kb, np.repeat(move, blank_size))
     at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
-    blank_x = np.repeat(jump_from[:, 0], blank_size) + \
-        np.repeat(jump_to[:, 0] - jump_from[:, 0], blank_size) * frac
-    blank_y = np.repeat(jump_from[:, 1], blank_size) + \
-        np.repeat(jump_to[:, 1] - jump_from[:, 1], blank_size) * frac
+    moving = kb < np.repeat(move, blank_size)
+    blank = np.empty((blank_total, 2))
+    blank[moving] = jumps.path(jump_from, jump_to, move)
+    blank[~moving] = np.repeat(jump_to, settles, axis=0)
+    blank_x, blank_y = np.ascontiguousarray(blank[:, 0]), np.ascontiguousarray(blank[:, 1])
     layout = Layout(s, px, py, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
                     at, blank_x, blank_y)
     return layout, lit, runs

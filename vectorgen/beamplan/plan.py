@@ -24,7 +24,8 @@ class Plan:
 
     def __init__(self, layout: Layout, lit: np.ndarray, runs: np.ndarray, strokes,
                  stroke_intensity: np.ndarray, drawn_length_mm: float, moving_samples: int,
-                 blanked_moves: int, blanked_length_mm: float, corners: int):
+                 blanked_moves: int, blanked_length_mm: float, corners: int,
+                 jump_samples: int = 0):
         self._layout = layout
         self.lit = lit              # (n,) bool: beam on
         self.runs = runs            # (2 S,) samples lit on stroke i, then blanked, in turn
@@ -34,6 +35,7 @@ class Plan:
         self.blanked_moves = blanked_moves
         self.blanked_length_mm = blanked_length_mm
         self.corners = corners
+        self.jump_samples = jump_samples      # samples the blanked moves take (not settles)
         # the strokes in the order drawn, or a function that makes them
         self._strokes = strokes
 
@@ -88,3 +90,25 @@ class Plan:
         """(n,) index into `strokes` of each lit sample, -1 when blanked."""
         S = self.stroke_count
         return np.repeat(np.column_stack([np.arange(S), np.full(S, -1)]).ravel(), self.runs)
+
+    def with_tail(self, points_mm: np.ndarray, moves: int = 0, length_mm: float = 0.0) -> "Plan":
+        """A copy with blanked samples at these positions ((E, 2) mm) added at the end of the
+        frame (after the jump back to the first stroke): a balancing excursion. `moves` and
+        `length_mm` are its blanked moves and their length, for the report."""
+        E = len(points_mm)
+        if E == 0:
+            return self
+        lay = self._layout
+        n = self.samples
+        end = lay.end.copy()
+        end[-1] += E
+        layout = Layout(lay.s, lay.px, lay.py, lay.start, end, lay.move, lay.step, lay.base,
+                        np.concatenate([lay.at, np.arange(n, n + E)]),
+                        np.concatenate([lay.blank_x, points_mm[:, 0]]),
+                        np.concatenate([lay.blank_y, points_mm[:, 1]]))
+        runs = self.runs.copy()
+        runs[-1] += E
+        return Plan(layout, np.concatenate([self.lit, np.zeros(E, dtype=bool)]), runs,
+                    self._strokes, self.stroke_intensity, self.drawn_length_mm,
+                    self.moving_samples, self.blanked_moves + moves,
+                    self.blanked_length_mm + length_mm, self.corners, self.jump_samples)
