@@ -14,12 +14,20 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.io import wavfile
 
-from render_helpers import blank_runs, lit_runs, make_profile, moving_steps, polylines, render, \
+from render_helpers import blank_runs, lit_runs, make_profile, moving_steps, polylines, \
     run_cli
+from render_helpers import render as _render
 from vectorgen.errors import VectorgenError
 from vectorgen.profile import Profile
 
-PROF = Profile()
+# The planner's own contract is tested with straight blanked jumps: a profile for an output
+# that holds each sample (a waveform generator). Shaped, band-limited jumps are tested through
+# an interface model in test_interface_render.py.
+PROF = make_profile(output={"band_limited": False})
+
+
+def render(strokes, profile=None, **settings):
+    return _render(strokes, PROF if profile is None else profile, **settings)
 RATE = 48000
 
 
@@ -136,7 +144,8 @@ def test_dwell_times_follow_the_profile_and_rate():
 # --- blanking -----------------------------------------------------------------------------------
 
 def test_blanked_samples_are_exactly_the_jumps_and_settles():
-    prof = make_profile(beam={"jump_speed_mm_per_s": 480000.0, "settle_us": 125.0})
+    prof = make_profile(beam={"jump_speed_mm_per_s": 480000.0, "settle_us": 125.0},
+                        output={"band_limited": False})
     strokes = polylines([(-40, 30), (-20, 30)], [(30, -30), (40, -20)], [(0, 0)],
                         [(-45, -35), (-45, -25)])
     frame = render(strokes, prof, channels=3)

@@ -177,3 +177,29 @@ def test_z_is_sent_early_by_the_declared_delay():
     lag = lag - n if lag > n / 2 else lag
     assert lag == pytest.approx(50e-6 * RATE, abs=0.15)
     assert np.array_equal(late.signal[:, :2], plain.signal[:, :2])
+
+
+def test_a_frame_switch_settles_within_one_frame_through_the_coupling():
+    # live: frame A loops, then frame B; the coupling capacitor's state carries over. Both are
+    # balanced, so the switch transient is small: from B's second pass on the picture is within
+    # 0.3 mm (butter(1, 10 Hz, 'high') + lfilter over the played sequence, scipy)
+    from vectorgen.deflection import DeflectionModel
+    from vectorgen.sources import shape
+
+    prof = make_profile(output={"channels": 3, "highpass_hz": 10.0, "band_limited": False})
+    a = shape("clock", prof.screen).transformed(np.eye(2) * 0.6, (-10.0, 5.0))
+    b = shape("clock", prof.screen).transformed(np.eye(2) * 0.4, (15.0, -8.0))
+    fa = render(a, prof, rate=RATE, channels=3)
+    fb = render(b, prof, rate=RATE, channels=3)
+    played = np.vstack([np.tile(fa.signal[:, :2], (30, 1)), np.tile(fb.signal[:, :2], (4, 1))])
+    bb, aa = sps.butter(1, 10.0, "high", fs=RATE)
+    out = sps.lfilter(bb, aa, played.astype(float), axis=0)
+    n = len(fb.signal)
+    model = DeflectionModel.from_profile(prof)
+    geom = _strokes_geometry(b)
+    worst = []
+    for k in range(4):
+        seg = out[30 * len(fa.signal) + k * n:30 * len(fa.signal) + (k + 1) * n]
+        mm = model.drive_to_mm(seg)
+        worst.append(float(shapely.distance(geom, shapely.points(mm[fb.plan.lit])).max()))
+    assert max(worst[1:]) < 0.3, worst

@@ -412,34 +412,35 @@ class Renderer:
         self.cmap.write_z(signal, z.astype(np.float32))
 
     def _balanced(self, plan, notes: list, extra: dict):
-        """The plan with a blanked balancing excursion at the end of the frame, so that the
-        frame's drive has zero mean and an AC-coupled output passes it whole: a jump from the
-        first stroke's start to a point p, a dwell of m samples there, the jump back and a
-        settle. p and m: the fewest samples within a reach that keeps the compensated drive
-        within full scale (reaches tried from far to near)."""
-        from .interface import balance_dwell
+        """The plan with a blanked balancing excursion at the end of the frame: from the first
+        stroke's start to a point p1, a dwell there, on to p2, a dwell, back and a settle.
 
+        Two conditions fix p1 and p2 on each axis: the frame's drive sums to zero (an AC-coupled
+        output passes no DC, so a frame of zero mean lands where it is drawn), and so does its
+        first moment sum(k d_k) (then the coupling capacitor holds no charge at the frame
+        boundary, whatever the drawing, so a live switch to another frame starts from the
+        state that frame's loop needs). Both are linear in p1 and p2; the dwells are made as
+        short as a reach allows, nearer reaches tried until the compensated drive is within
+        full scale."""
         corrected = self.model.drive_from_xy(plan.x, plan.y)
-        total = corrected.sum(axis=0)
+        n = plan.samples
+        k = np.arange(n, dtype=float)
+        S, M = corrected.sum(axis=0), k @ corrected
         s0 = corrected[0]
-        s0_mm = np.array([plan.positions(0, 1)[0][0], plan.positions(0, 1)[1][0]])
-        settle = self.timing.settle
         last_err = None
-        for reach in BALANCE_REACHES:
-            T = 0
-            for _ in range(8):
-                m, p = balance_dwell(total + settle * s0, plan.samples, (reach, reach),
-                                     jump_samples=T, start=s0)
-                p_mm = self.model.drive_to_mm(p[None, :])
-                T_new = int(self.jumps.moves(s0_mm[None, :], p_mm)[0])
-                if T_new <= T:
-                    break
-                T = T_new
-            there = self.jumps.path(s0_mm[None, :], p_mm, np.array([T]))
-            back = self.jumps.path(p_mm, s0_mm[None, :], np.array([T]))
-            tail = np.vstack([there[:T], np.repeat(p_mm, m + (T - len(there[:T])), axis=0),
-                              back, np.repeat(s0_mm[None, :], settle, axis=0)])
-            trial = plan.with_tail(tail, 2, 2 * float(np.hypot(*(p_mm[0] - s0_mm))))
+        # first with both conditions; where no reach keeps the drive within full scale, with
+        # the mean alone (the picture is right; a live switch then shows a short transient)
+        tries = [(r, True) for r in BALANCE_REACHES] + [(r, False) for r in BALANCE_REACHES]
+        for reach, moment in tries:
+            try:
+                tail, info = self._balance_tail(S, M if moment else None, s0, n, reach)
+            except InputError as exc:
+                last_err = exc
+                continue
+            tail_mm = self.model.drive_to_mm(tail)
+            tail_mm[-1] = np.array(plan.positions(0, 1)).ravel()   # exactly the frame's start
+            length = float(np.hypot(*np.diff(np.vstack([tail_mm[-1:], tail_mm]), axis=0).T).sum())
+            trial = plan.with_tail(tail_mm, 3, length)
             try:
                 final = check_full_scale(self.chain.frame(
                     self.model.drive_from_xy(trial.x, trial.y), self.rate), trial)
@@ -448,18 +449,91 @@ class Renderer:
             except FullScaleError as exc:
                 last_err = exc
                 continue
-            resid = self.model.matrix @ self.model.drive_from_xy(trial.x, trial.y).mean(axis=0)
-            extra["balance"] = {"dwell_samples": int(m), "point_mm": _r(p_mm[0]),
-                                "reach": reach, "cost_samples": int(len(tail)),
-                                "cost_fraction": round(len(tail) / plan.samples, 6),
-                                "residual_shift_mm": _r(-resid)}
+            d = self.model.drive_from_xy(trial.x, trial.y)
+            resid = self.model.matrix @ d.mean(axis=0)
+            pts = self.model.drive_to_mm(np.vstack([info["p1"], info["p2"]]))
+            extra["balance"] = {"dwell_samples": int(2 * info["m"]),
+                                "points_mm": [_r(pts[0]), _r(pts[1])], "reach": reach,
+                                "cost_samples": int(len(tail)),
+                                "cost_fraction": round(len(tail) / n, 6),
+                                "residual_shift_mm": _r(-resid),
+                                "switch_ready": bool(moment)}
+            if not moment:
+                notes.append("frame balanced for its mean only (its first moment would need "
+                             "more drive than is left): a live switch from or to this frame "
+                             "shows a short transient of the AC coupling")
             if not self.cmap.has_z:
-                notes.append(f"without a Z channel the frame-balancing move to "
-                             f"({p_mm[0, 0]:.1f}, {p_mm[0, 1]:.1f}) mm shows as a line; to move "
-                             f"the picture instead turn balancing off (it would shift by "
+                notes.append(f"without a Z channel the frame-balancing moves to "
+                             f"({pts[0, 0]:.1f}, {pts[0, 1]:.1f}) and ({pts[1, 0]:.1f}, "
+                             f"{pts[1, 1]:.1f}) mm show as lines; to move the picture instead "
+                             f"turn balancing off (it would shift by "
                              f"{self._shift_text(corrected)})")
             return trial
         raise last_err
+
+    def _balance_tail(self, S, M, s0, n, reach):
+        """Drive positions (L, 2) of the balancing excursion for a frame of n samples whose
+        drive sums to S and has first moment M (None: the sum only, both dwells at one point),
+        within `reach` of the centre."""
+        jumps = self.jumps
+        mm = self.model.drive_to_mm
+        settle = self.timing.settle
+        p1 = np.clip(-np.sign(S) * reach, -reach, reach)
+        p2 = -p1
+        m = 1
+        for _ in range(60):
+            counts = [int(jumps.moves(mm(a[None]), mm(b[None]))[0]) or 1
+                      for a, b in ((s0, p1), (p1, p2), (p2, s0))]
+            coef = self._tail_coefficients(counts, m, settle)      # (L, 3): s0, p1, p2
+            L = len(coef)
+            t = n + np.arange(L, dtype=float)
+            if M is None:
+                # one point for both dwells: the sum alone
+                w = coef[:, 1].sum() + coef[:, 2].sum()
+                q1 = q2 = -(S + s0 * coef[:, 0].sum()) / w
+            else:
+                A = np.array([[coef[:, 1].sum(), coef[:, 2].sum()],
+                              [t @ coef[:, 1], t @ coef[:, 2]]])
+                rhs = -np.vstack([S + s0 * coef[:, 0].sum(), M + s0 * (t @ coef[:, 0])])
+                try:
+                    sol = np.linalg.solve(A, rhs)                   # rows p1, p2; columns x, y
+                except np.linalg.LinAlgError:
+                    m += 1
+                    continue
+                q1, q2 = sol[0], sol[1]
+            if np.abs(np.concatenate([q1, q2])).max() <= reach:
+                new_counts = [int(jumps.moves(mm(a[None]), mm(b[None]))[0]) or 1
+                              for a, b in ((s0, q1), (q1, q2), (q2, s0))]
+                if new_counts == counts:
+                    tail = coef[:, :1] * s0 + coef[:, 1:2] * q1 + coef[:, 2:3] * q2
+                    return tail, {"p1": q1, "p2": q2, "m": m}
+                p1, p2 = q1, q2
+                continue
+            m = max(m + 1, int(np.ceil(m * 1.3)))
+        raise InputError(f"cannot balance this frame within a reach of {reach:g} of full scale")
+
+    def _tail_coefficients(self, counts, m, settle) -> np.ndarray:
+        """(L, 3) weights of s0, p1, p2 in each sample of the excursion: the three jumps (the
+        jump model's shape, a raised cosine for a lagging deflection) with a dwell of m samples
+        at p1 and at p2, then the settle at s0."""
+        rows = []
+        for (src, dst), c in zip(((0, 1), (1, 2), (2, 0)), counts):
+            if isinstance(self.jumps, LagJumps):
+                f = (1.0 - np.cos(np.pi * np.arange(1, 2 * c + 1) / (2 * c))) / 2.0
+            else:
+                f = self.jumps.fractions(np.arange(c), np.full(c, c))
+            w = np.zeros((len(f), 3))
+            w[:, src] += 1.0 - f
+            w[:, dst] += f
+            rows.append(w)
+            if dst != 0:
+                hold = np.zeros((m, 3))
+                hold[:, dst] = 1.0
+                rows.append(hold)
+        hold = np.zeros((settle, 3))
+        hold[:, 0] = 1.0
+        rows.append(hold)
+        return np.vstack(rows)
 
     def _shift_text(self, corrected) -> str:
         shift = -(self.model.matrix @ corrected.mean(axis=0))

@@ -16,7 +16,7 @@ from .channels import ChannelMap
 from .deflection import DeflectionModel
 from .files import atomic_write
 
-__all__ = ["phosphor_image", "write_png", "write_signal_plot"]
+__all__ = ["phosphor_image", "spot_path", "write_png", "write_signal_plot"]
 
 MAX_SWEEP_STEPS = 16
 
@@ -37,8 +37,12 @@ def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray |
     width_px, spot_mm, margin
         Picture width, spot size on the phosphor, margin around the usable area (fraction).
     chain : StageChain, optional
-        The stages the samples went through: the preview runs the samples through their model
-        of the hardware (needs `rate`).
+        The hardware after the jack, as stages: the preview runs the samples through their
+        models (needs `rate`).
+    rate : int, optional
+        Sample rate; with it, a band-limited output (``[output] band_limited``) is shown as its
+        reconstruction filter makes it (4x band-limited interpolation) and Z as delayed by
+        ``z_delay_us``.
 
     Returns
     -------
@@ -46,11 +50,7 @@ def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray |
     """
     from scipy.ndimage import gaussian_filter
 
-    drive, z = ChannelMap(profile.output, channels).from_channels(signal)
-    if chain:
-        drive = chain.hardware(drive, rate)
-    weight = z if z is not None else (np.ones(len(drive)) if lit is None else lit.astype(float))
-    pts = DeflectionModel.from_profile(profile).drive_to_mm(drive)
+    pts, weight = spot_path(signal, profile, channels, lit, chain, rate)
 
     hw, hh = profile.screen.half_extent
     hw, hh = hw * (1 + margin), hh * (1 + margin)
@@ -84,6 +84,40 @@ def phosphor_image(signal: np.ndarray, profile, channels: int, lit: np.ndarray |
     orow = np.clip(((hh - dense[:, 1]) * px_per_mm).astype(int), 0, height_px - 1)
     rgb[orow, oc] = np.maximum(rgb[orow, oc], 0.22)
     return (np.clip(rgb, 0, 1) * 255).astype(np.uint8)
+
+
+OVERSAMPLE = 4
+
+
+def spot_path(signal: np.ndarray, profile, channels: int, lit: np.ndarray | None = None,
+              chain=None, rate: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Where the spot is (mm) and how bright, for a looping frame of channel samples, as the
+    hardware makes them: the channel map undone, the chain's hardware models (AC coupling, the
+    deflection's lag), the interface's reconstruction (band-limited interpolation, or each
+    sample held) and the Z path's delay, then the deflection model.
+
+    Returns
+    -------
+    (pts (m, 2) mm, weight (m,) 0..1)
+    """
+    drive, z = ChannelMap(profile.output, channels).from_channels(signal)
+    if chain:
+        drive = chain.hardware(drive, rate)
+    weight = z if z is not None else (np.ones(len(drive)) if lit is None else lit.astype(float))
+    if rate is not None and len(drive) > 1:
+        from .interface import fractional_delay, oversample_periodic
+
+        out = profile.output
+        if out.z_delay_us and z is not None:
+            weight = fractional_delay(weight[:, None], out.z_delay_us * 1e-6 * rate)[:, 0]
+        if out.band_limited:
+            drive = oversample_periodic(drive, OVERSAMPLE)
+            weight = oversample_periodic(weight[:, None], OVERSAMPLE)[:, 0]
+        else:
+            drive = np.repeat(drive, OVERSAMPLE, axis=0)
+            weight = np.repeat(weight, OVERSAMPLE)
+        weight = np.clip(weight, 0.0, 1.0)
+    return DeflectionModel.from_profile(profile).drive_to_mm(drive), weight
 
 
 def write_png(path: str, rgb: np.ndarray) -> None:

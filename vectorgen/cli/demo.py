@@ -22,7 +22,8 @@ def cmd_demo(args) -> int:
         source=DEMO_SVG, text=None, shape=None, fit="page", tolerance=None, text_height=None,
         align="center", time=None, grid_step=10.0, radius=None,
         profile=args.profile, rate=args.rate, channels=args.channels, speed=None,
-        refresh=args.refresh, samples=None, keep_order=False, order=None,
+        refresh=args.refresh, samples=None, keep_order=False, order=None, no_compensation=False,
+        no_balance=False, slow_to_fit=False,
         output=args.output, seconds=args.seconds, pcm16=False,
         report=stem + ".json", preview=stem + ".png", quiet=False)
     code = cmd_render(render_args)

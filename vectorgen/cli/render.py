@@ -29,6 +29,16 @@ def add_output_arguments(parser) -> None:
                    help="fit one frame into exactly N samples (waveform generator memory)")
     g.add_argument("--keep-order", action="store_true",
                    help="draw strokes in source order (default: ordered for short blanked moves)")
+    g.add_argument("--no-compensation", action="store_true",
+                   help="render as for ideal hardware: no shaped jumps, no AC-coupling or lag "
+                        "compensation, no frame balancing (a preview then shows what the "
+                        "profile's interface and deflection make of it)")
+    g.add_argument("--no-balance", action="store_true",
+                   help="with an AC-coupled output ([output] highpass_hz): do not balance frames "
+                        "to zero mean; the picture shifts by the frame's mean instead")
+    g.add_argument("--slow-to-fit", action="store_true",
+                   help="when the [drive] cannot make the frame at this writing speed, slow "
+                        "down to fit instead of refusing")
     g.add_argument("--order", default=None, metavar="STRATEGY",
                    help="stroke ordering strategy by name: greedy (default), input (= "
                    "--keep-order); an unknown name lists every one")
@@ -44,7 +54,10 @@ def load_setup(args, stages=()):
     if args.keep_order and getattr(args, "order", None) not in (None, "input"):
         raise InputError("--keep-order and --order say different things: give one")
     settings = Settings(rate=args.rate, channels=args.channels, speed=args.speed,
-                        refresh=args.refresh, frame_samples=args.samples, ordering=ordering)
+                        refresh=args.refresh, frame_samples=args.samples, ordering=ordering,
+                        compensate=not getattr(args, "no_compensation", False),
+                        balance=not getattr(args, "no_balance", False),
+                        slow_to_fit=getattr(args, "slow_to_fit", False))
     return profile, Renderer(profile, settings, stages)
 
 
@@ -105,7 +118,7 @@ def cmd_render(args) -> int:
         from ..preview import phosphor_image, write_png
 
         write_png(args.preview, phosphor_image(first.signal, profile, renderer.channels,
-                                               first.plan.lit, chain=renderer.chain,
+                                               first.plan.lit, chain=renderer.hardware_chain,
                                                rate=renderer.rate))
     if args.report:
         atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
@@ -131,7 +144,7 @@ def cmd_preview(args) -> int:
     frame = timeline(args, profile, renderer, None)[0][0]
     write_png(args.output, phosphor_image(frame.signal, profile, renderer.channels,
                                           frame.plan.lit, width_px=args.width,
-                                          spot_mm=args.spot, chain=renderer.chain,
+                                          spot_mm=args.spot, chain=renderer.hardware_chain,
                                           rate=renderer.rate))
     if args.signals:
         write_signal_plot(args.signals, frame.signal, frame.names, renderer.rate)

@@ -24,7 +24,8 @@ PARAM_FLAGS = {
     "rate": "--rate", "channels": "--channels", "speed": "--speed", "refresh": "--refresh",
     "frame_samples": "--samples", "tolerance_mm": "--tolerance", "radius_mm": "--radius",
     "radius": "--radius", "text_height_mm": "--text-height", "grid_step_mm": "--grid-step",
-    "ordering": "--order", "time": "--time",
+    "ordering": "--order", "time": "--time", "slow_to_fit": "--slow-to-fit",
+    "balance": "--no-balance", "compensate": "--no-compensation",
 }
 
 
