@@ -151,9 +151,9 @@ def test_a_gain_stage_is_invisible_in_the_preview():
     plain = Renderer(prof, Settings(rate=48000, channels=3)).frame(_square())
     r = Renderer(prof, Settings(rate=48000, channels=3), [Gain(0.5)])
     halved = r.frame(_square())
-    ref = phosphor_image(plain.signal, prof, 3)
+    ref = phosphor_image(plain.signal, prof, 3, rate=48000)
     through_chain = phosphor_image(halved.signal, prof, 3, chain=r.chain, rate=48000)
-    ignoring_chain = phosphor_image(halved.signal, prof, 3)
+    ignoring_chain = phosphor_image(halved.signal, prof, 3, rate=48000)
     assert np.array_equal(through_chain, ref)
     # control: read without the chain's hardware model the picture is half the size
     assert not np.array_equal(ignoring_chain, ref)
@@ -276,7 +276,7 @@ def write_toy(fh, signal, rate, names, pcm16):
     fh.write(f"TOY {rate} {' '.join(names)} {len(signal)}\\n".encode())
     fh.write(signal.astype("<f4").tobytes().hex().encode())
 
-def reversed_order(starts, ends, jump_cost=None):
+def reversed_order(starts, ends, jump_cost=None, strokes=None):
     """A toy ordering: stroke 0 first, then the rest backwards, each forwards."""
     S = len(starts)
     return np.array([0] + list(range(S - 1, 0, -1)), dtype=np.int64), np.zeros(S, dtype=bool)

@@ -15,7 +15,7 @@ from .deflection import DeflectionModel
 from .errors import FullScaleError
 from .stages import StageChain
 
-__all__ = ["FULL_SCALE_SLACK", "correct", "check_full_scale", "check_true_peak",
+__all__ = ["FULL_SCALE_SLACK", "TRUE_PEAK_SLACK", "correct", "check_full_scale", "check_true_peak",
            "inter_sample_peaks", "plan_signal", "CHUNK"]
 
 FULL_SCALE_SLACK = 1e-9
@@ -50,7 +50,7 @@ def check_full_scale(drive: np.ndarray, plan) -> np.ndarray:
 
 
 TP_TAPS = 12            # input samples either side in the 4x interpolator (BS.1770-4 uses 48 taps)
-TP_SCREEN = 0.75        # a sample this far below full scale cannot see an overshoot past it
+TP_SCREEN_CHUNK = 0.7   # a chunk whose samples stay below this cannot overshoot full scale
 _TP_PHASES = None
 
 
@@ -68,34 +68,77 @@ def _tp_phases() -> np.ndarray:
     return _TP_PHASES
 
 
-def inter_sample_peaks(drive: np.ndarray) -> tuple[float, int, int]:
+def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[float, int, int]:
     """The largest |value| of a looping frame's band-limited path between its samples, as a
-    4x interpolator sees it (ITU-R BS.1770-4 Annex 2 measures true peak so), looked at only
-    around samples above TP_SCREEN of full scale (the rest cannot reach it). Returns (peak,
-    sample index, axis)."""
+    4x interpolator sees it (ITU-R BS.1770-4 Annex 2 measures true peak so). Returns (peak,
+    sample index, axis).
+
+    Only the gaps that can reach beyond full scale are interpolated: between samples k and
+    k + 1 the path is sum_j h_j x_(k+j), so it stays within |x_k| + H1 max_j |x_(k+j) - x_k|
+    (H1 = sum |h_j|); gaps where that bound is below 1 are passed over. `halo`, for a chunk of
+    a longer frame: the TP_TAPS samples before and after it ((TP_TAPS, 2) each); without it
+    the frame wraps round (it loops)."""
     n = len(drive)
-    a = np.abs(drive)
-    near = np.flatnonzero((a > TP_SCREEN).any(axis=1))
-    if not near.size or n < 2:
-        return (float(a.max()) if a.size else 0.0), 0, 0
-    # every gap k -> k + 1 next to a high sample (one each side)
-    gaps = np.unique(np.concatenate([near - 1, near]) % n)
-    idx = (gaps[:, None] + np.arange(-TP_TAPS + 1, TP_TAPS + 1)[None, :]) % n
-    best, at, axis = 0.0, 0, 0
+    if n < 2:
+        return (float(np.abs(drive).max()) if drive.size else 0.0), 0, 0
     h = _tp_phases()
+    h1 = float(np.abs(h).sum(axis=0).max())
+    if halo is None:
+        ext = np.concatenate([drive[-TP_TAPS:], drive, drive[:TP_TAPS]]) if n >= TP_TAPS else \
+            np.concatenate([np.tile(drive, (TP_TAPS // n + 1, 1))[-TP_TAPS:], drive,
+                            np.tile(drive, (TP_TAPS // n + 1, 1))[:TP_TAPS]])
+    else:
+        ext = np.concatenate([halo[0], drive, halo[1]])
+    best, at, axis = float(np.abs(drive).max()), 0, 0
     for ax in range(drive.shape[1]):
-        v = np.abs(drive[idx, ax] @ h)                  # (g, 3)
+        col = ext[:, ax]
+        hi, lo = _window_range(col, n)
+        x = col[TP_TAPS:TP_TAPS + n]
+        bound = np.abs(x) + h1 * np.maximum(hi - x, x - lo)
+        gaps = np.flatnonzero(bound > 1.0)
+        if not gaps.size:
+            continue
+        idx = gaps[:, None] + TP_TAPS + np.arange(-TP_TAPS + 1, TP_TAPS + 1)[None, :]
+        v = np.abs(col[np.minimum(idx, len(col) - 1)] @ h)          # (g, 3)
         j = int(np.argmax(v.max(axis=1)))
         if v[j].max() > best:
             best, at, axis = float(v[j].max()), int(gaps[j]), ax
-    return max(best, float(a.max())), at, axis
+    return best, at, axis
 
 
-def check_true_peak(drive: np.ndarray, plan) -> None:
-    """A `FullScaleError` when the band-limited path of a looping frame (what an audio
-    interface's reconstruction filter makes of it) goes beyond full scale between samples."""
+def _window_range(col: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Upper and lower bounds of col over at least +-TP_TAPS samples around each of its n
+    middle samples (col has TP_TAPS extra on each side): block maxima and minima over blocks of
+    TP_TAPS, each sample taking its own block and both neighbours (a cheap, slightly wider
+    window)."""
+    B = TP_TAPS
+    m = -(-len(col) // B)
+    if m * B != len(col):
+        col = np.concatenate([col, np.full(m * B - len(col), col[-1])])
+    blocks = col.reshape(m, B)
+    bmax, bmin = blocks.max(axis=1), blocks.min(axis=1)
+    hi, lo = bmax.copy(), bmin.copy()
+    np.maximum(hi[1:], bmax[:-1], out=hi[1:])
+    np.maximum(hi[:-1], bmax[1:], out=hi[:-1])
+    np.minimum(lo[1:], bmin[:-1], out=lo[1:])
+    np.minimum(lo[:-1], bmin[1:], out=lo[:-1])
+    return np.repeat(hi, B)[B:B + n], np.repeat(lo, B)[B:B + n]
+
+
+TRUE_PEAK_SLACK = 0.002     # 0.2 % of full scale (0.1 mm on a 50 mm half-width) is let pass
+
+
+def check_true_peak(drive: np.ndarray, plan) -> float:
+    """The true peak of a looping frame; a `FullScaleError` when its band-limited path (what an
+    audio interface's reconstruction filter makes of it) goes beyond full scale between samples
+    by more than TRUE_PEAK_SLACK (less is a clip of a fraction of the spot size)."""
     peak, i, axis = inter_sample_peaks(drive)
-    if peak > 1.0 + 1e-6:
+    _raise_true_peak(peak, i, axis, plan)
+    return peak
+
+
+def _raise_true_peak(peak: float, i: int, axis: int, plan) -> None:
+    if peak > 1.0 + TRUE_PEAK_SLACK:
         raise FullScaleError(f"true peak {'xy'[axis]} = {peak:.4f} is beyond full scale between "
                              f"samples {_where(plan, i)}: the interface's low-pass would "
                              f"overshoot (shrink the drawing or the usable area, or lower the "
@@ -114,19 +157,21 @@ def _where(plan, i: int) -> str:
     return f"at ({x[0]:.2f}, {y[0]:.2f}) mm in {what}"
 
 
-def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMap, rate: int):
+def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMap, rate: int,
+                true_peak: bool = False):
     """The channel signal of a beam plan: correction, the stage chain, the full-scale check and
     the channel map. Returns (signal (n, channels) float32, peak |drive|, the final drive (n, 2)
-    when it was made whole, else None).
+    when it was made whole, else None, the true peak or None).
 
     With no pincushion terms and a chain of pointwise stages, each sample's drive depends on
     its position alone, so the frame goes through in cache-sized chunks straight into the
-    signal and the full (n, 2) drive is never made. Otherwise (Newton's iterations run on the
-    whole frame; a filtering stage sees the whole loop), or when a chunk comes out beyond full
+    signal and the full (n, 2) drive is never made (with `true_peak`, each chunk is checked
+    with the samples either side of it). Otherwise (Newton's iterations run on the whole
+    frame; a filtering stage sees the whole loop), or when a chunk comes out beyond full
     scale (to be refused, or clipped within the slack), the frame is done whole. Both give the
     same samples."""
     if model.has_distortion or not chain.pointwise:
-        return _whole(plan, model, chain, cmap, rate)
+        return _whole(plan, model, chain, cmap, rate, true_peak)
     n = plan.samples
     sig = np.empty((n, cmap.channels), dtype=np.float32)
     if cmap.has_z:                      # the Z level of every lit or blanked run
@@ -134,29 +179,53 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
         run_end = np.cumsum(plan.runs)
         run_start = run_end - plan.runs
     lo, hi = np.inf, -np.inf
+    tp, tp_at, tp_axis = 0.0, 0, 0
+
+    def drive(a, b):
+        return chain.frame(model.drive_from_xy(*plan.positions(a, b)), rate)
+
+    def span(a, b):                     # samples a .. b - 1 of the loop, a may be < 0, b > n
+        parts = []
+        while a < b:
+            i = a % n
+            j = min(n, i + (b - a))
+            parts.append(drive(i, j))
+            a += j - i
+        return np.concatenate(parts)
+
     for c0 in range(0, n, CHUNK):
         c1 = min(n, c0 + CHUNK)
-        d = chain.frame(model.drive_from_xy(*plan.positions(c0, c1)), rate)
+        d = drive(c0, c1)
         dlo, dhi = d.min(), d.max()
         if not (-1.0 <= dlo and dhi <= 1.0):
-            return _whole(plan, model, chain, cmap, rate)
+            return _whole(plan, model, chain, cmap, rate, true_peak)
         lo, hi = min(lo, dlo), max(hi, dhi)
+        if true_peak and max(-dlo, dhi) > TP_SCREEN_CHUNK:
+            halo = (span(c0 - TP_TAPS, c0), span(c1, c1 + TP_TAPS))
+            p, i, ax = inter_sample_peaks(d, halo)
+            if p > tp:
+                tp, tp_at, tp_axis = p, c0 + i, ax
         cmap.write_xy(sig[c0:c1], d)
         if cmap.has_z:
             r0 = int(np.searchsorted(run_end, c0, side="right"))
             r1 = int(np.searchsorted(run_end, c1 - 1, side="right")) + 1
             sizes = np.minimum(run_end[r0:r1], c1) - np.maximum(run_start[r0:r1], c0)
             cmap.write_z(sig[c0:c1], np.repeat(zrun[r0:r1], sizes))
-    return sig, (float(max(abs(lo), abs(hi))) if n else 0.0), None
+    peak = float(max(abs(lo), abs(hi))) if n else 0.0
+    if true_peak:
+        tp = max(tp, peak)
+        _raise_true_peak(tp, tp_at, tp_axis, plan)
+    return sig, peak, None, (tp if true_peak else None)
 
 
-def _whole(plan, model, chain, cmap, rate):
+def _whole(plan, model, chain, cmap, rate, true_peak=False):
     drive = check_full_scale(chain.frame(model.drive_from_xy(plan.x, plan.y), rate), plan)
     sig = np.empty((len(drive), cmap.channels), dtype=np.float32)
     cmap.write_xy(sig, drive)
     if cmap.has_z:
         cmap.write_z(sig, np.repeat(_z_runs(plan, cmap), plan.runs))
-    return sig, (float(np.abs(drive).max()) if len(drive) else 0.0), drive
+    tp = check_true_peak(drive, plan) if true_peak else None
+    return sig, (float(np.abs(drive).max()) if len(drive) else 0.0), drive, tp
 
 
 def _z_runs(plan, cmap: ChannelMap) -> np.ndarray:

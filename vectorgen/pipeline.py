@@ -17,7 +17,7 @@ import numpy as np
 from .beamplan import ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, plan_frame
 from .channels import ChannelMap
 from .clip import clip_parts
-from .correction import check_full_scale, check_true_peak, inter_sample_peaks, plan_signal
+from .correction import check_full_scale, check_true_peak, plan_signal
 from .deflection import DeflectionModel
 from .errors import FullScaleError, InputError, VectorgenWarning
 from .stages import Stage, StageChain
@@ -46,6 +46,23 @@ def stages_for(profile, response=None) -> list:
 
         stages.append(LagCompensation(response))
     return stages
+
+
+def merged(strokes, tol_mm: float):
+    """Strokes whose ends meet (within `tol_mm`) and share an intensity joined into one, as
+    shapely.ops.linemerge joins lines: each join removes a jump and two end dwells. Every
+    point is kept; a joined stroke is labelled by its first part."""
+    from .tour import merge_strokes
+
+    if strokes.count < 2:
+        return strokes
+    s = strokes.packed()
+    pts, offs, inten, groups = merge_strokes(s.points, s.offsets, s.intensity, tol_mm)
+    if len(offs) - 1 == s.count:
+        return s
+    labels = [s.labels[int(g[0])] + (f" (+{len(g) - 1} joined)" if len(g) > 1 else "")
+              for g in groups]
+    return Strokes(pts, offs, inten, labels)
 
 
 def _r(v):
@@ -81,7 +98,7 @@ class Settings:
     frame_samples : int or None
         Fit each frame into exactly this many samples (a waveform generator's memory).
     ordering : str
-        Stroke ordering strategy by name (``"greedy"``, ``"input"``).
+        Stroke ordering strategy by name (``"tour"``, ``"greedy"``, ``"input"``).
     compensate : bool
         Make the picture right at the spot for the profile's interface and response: shaped
         jumps, the compensation stages, frame balancing. False renders as for ideal hardware
@@ -99,7 +116,7 @@ class Settings:
     speed: float | None = None
     refresh: float | None = None
     frame_samples: int | None = None
-    ordering: str = "greedy"
+    ordering: str = "tour"
     compensate: bool = True
     balance: bool = True
     slow_to_fit: bool = False
@@ -340,6 +357,8 @@ class Renderer:
         if clipped.count == 0:
             raise InputError("nothing to draw: the drawing lies wholly outside the usable "
                              "area of the screen")
+        if self.settings.ordering != "input":
+            clipped = merged(clipped, self.profile.beam.chord_tolerance_mm)
         plan = plan_frame(clipped, self.timing, self.target, self.settings.ordering,
                           self.jumps, self.speed_cap if self.target is None else None)
         del clipped
@@ -352,13 +371,13 @@ class Renderer:
             extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(-shift)}
             notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
                          f"({-shift[0]:.2f}, {-shift[1]:.2f}) mm (balancing is off)")
-        signal, peak, drive = plan_signal(plan, self.model, self.chain, self.cmap, self.rate)
-        if self.chain and not self.chain.pointwise or self.checks_true_peak:
-            drive = drive if drive is not None else check_full_scale(
-                self.chain.frame(self.model.drive_from_xy(plan.x, plan.y), self.rate), plan)
-        if self.checks_true_peak:
-            check_true_peak(drive, plan)
-            extra["true_peak"] = _r(inter_sample_peaks(drive)[0])
+        signal, peak, drive, tp = plan_signal(plan, self.model, self.chain, self.cmap,
+                                              self.rate, self.checks_true_peak)
+        if tp is not None:
+            extra["true_peak"] = _r(tp)
+            if tp > 1.0:
+                notes.append(f"true peak {tp:.4f}: the interface clips {100 * (tp - 1):.2f} % of "
+                             f"full scale between samples near the edge")
         if self.z_shift and self.cmap.has_z:
             self._delay_z(signal, plan)
         frame = Frame(signal, self.cmap.names, plan, self.rate, self, drive, peak, n_clipped)

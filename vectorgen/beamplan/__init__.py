@@ -3,7 +3,8 @@
 `plan_frame` reads as the pipeline, one job per module:
 
 * `ordering`: in what order and which way round the strokes are drawn (a strategy by name:
-  ``"greedy"`` nearest entry point, ``"input"`` as given);
+  ``"tour"`` the shortest tour in jump time, ``"greedy"`` nearest entry point, ``"input"``
+  as given);
 * `layout`: strokes on one global arc-length axis, cut at their sharp corners into pieces, and
   the frame's samples as blocks on that axis (every stroke resampled by one `numpy.interp`);
 * `dwell`: dwells at stroke ends, sharp corners and dots;
@@ -25,19 +26,19 @@ from .budget import apportion, piece_steps
 from .dwell import dwells, turn_deg
 from .jumps import LagJumps, ShapedJumps, StraightJumps
 from .layout import CHUNK, GAP, Layout, arc_axis
-from .ordering import ORDERINGS, greedy_order, input_order, register_ordering
+from .ordering import ORDERINGS, greedy_order, input_order, register_ordering, tour_order
 from .plan import Plan
 from .timing import Timing
 
 __all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "LagJumps", "Plan", "ShapedJumps", "StraightJumps", "Timing", "apportion",
-           "greedy_order", "input_order", "plan_frame", "register_ordering",
+           "greedy_order", "input_order", "tour_order", "plan_frame", "register_ordering",
            "turn_deg", "CHUNK", "GAP"]
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
 
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
-               ordering: str = "greedy", jumps=None, speed_cap=None) -> Plan:
+               ordering: str = "tour", jumps=None, speed_cap=None) -> Plan:
     """The beam plan for one frame.
 
     Parameters
@@ -49,7 +50,7 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     target_samples : int, optional
         Fit the frame into exactly this many samples (None: free-running at the writing speed).
     ordering : str
-        Name of the ordering strategy in `ORDERINGS` (``"greedy"``, ``"input"``, ...).
+        Name of the ordering strategy in `ORDERINGS` (``"tour"``, ``"greedy"``, ``"input"``).
     jumps : jump model, optional
         How blanked jumps move (`jumps.StraightJumps`, `ShapedJumps`, `LagJumps`); default the
         timing's straight jumps.
@@ -141,15 +142,25 @@ def _ordered(strokes, strategy, jumps):
     and the drawn strokes (a Strokes, or a function that makes it only if asked for)."""
     if strokes.packing_drops_points() or strokes.count <= 2 or strategy is input_order:
         strokes = strokes.packed()
-    order, flip = strategy(*strokes.end_points(), jumps.cost)
+    arrays = strokes.arrays()
+    found = strategy(*strokes.end_points(), jumps.cost, arrays)
+    order, flip = found[0], found[1]
+    rotate = found[2] if len(found) > 2 else None
     if strategy is input_order:
         pts = strokes.points
         return (np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
                 strokes.offsets, strokes.intensity, strokes)
+    if rotate is not None and np.any(rotate):
+        from ..tour import rethread_ring
+
+        arrays = list(arrays)
+        for pos in np.flatnonzero(rotate).tolist():
+            i = int(order[pos])
+            arrays[i] = rethread_ring(arrays[i], int(rotate[pos]))
     # x, y as contiguous 1-D arrays (whole-array arithmetic on them is several times faster
     # than on the columns of a (P, 2) array) in the new order; the reordered Strokes are made
     # from them only if asked for
-    px, py = _reordered_xy(strokes.arrays(), order, flip)
+    px, py = _reordered_xy(arrays, order, flip)
     offs = _reordered_offsets(strokes.offsets, order)
     intensity = strokes.intensity[order]
     labels = strokes.labels

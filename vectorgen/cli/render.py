@@ -40,8 +40,9 @@ def add_output_arguments(parser) -> None:
                    help="when the [drive] cannot make the frame at this writing speed, slow "
                         "down to fit instead of refusing")
     g.add_argument("--order", default=None, metavar="STRATEGY",
-                   help="stroke ordering strategy by name: greedy (default), input (= "
-                   "--keep-order); an unknown name lists every one")
+                   help="stroke ordering strategy by name: tour (default: shortest jump time), "
+                   "greedy (nearest next stroke), input (= --keep-order); an unknown name lists "
+                   "every one")
 
 
 def load_setup(args, stages=()):
@@ -50,7 +51,7 @@ def load_setup(args, stages=()):
     from ..profile import load_profile
 
     profile = load_profile(args.profile)
-    ordering = getattr(args, "order", None) or ("input" if args.keep_order else "greedy")
+    ordering = getattr(args, "order", None) or ("input" if args.keep_order else "tour")
     if args.keep_order and getattr(args, "order", None) not in (None, "input"):
         raise InputError("--keep-order and --order say different things: give one")
     settings = Settings(rate=args.rate, channels=args.channels, speed=args.speed,
