@@ -16,6 +16,13 @@ Patterns
           makes it land as a circle, and its horizontal and vertical diameters are equal. Its
           targets' drive values are the current profile's inverse at those points.
 
+Patterns without targets (no measurement sheet), read off a scope or the tube instead
+  step     a slow square wave of jumps on one axis, straight to the channels with the beam
+           blanked (`step_signal`): the scope captures the yoke current for
+           `vectorgen fit-response`.
+  ztiming  rows of dashes drawn alternately left to right and right to left over a scale of
+           ticks (`ztiming_strokes`): where the dash ends land tells how early or late Z acts.
+
 Targets are marked with a small cross (two short strokes through the target and a dot on it) or
 with a dot alone (`mark="dot"`). A cross is easier to read with a ruler and spreads the beam's
 dwell; its intensity centroid is the target, so a photo finds it as well as a dot.
@@ -27,11 +34,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from vectorgen.channels import ChannelMap
 from vectorgen.deflection import DeflectionModel
 from vectorgen.errors import VectorgenError
 from vectorgen.strokes import Strokes, strokes_from_polylines
 
 PATTERNS = ("grid", "box", "circle")
+SIGNAL_PATTERNS = ("step", "ztiming")      # no targets, no sheet
 MARKS = ("cross", "dot")
 MAX_SIDE = 40               # rows or columns of a grid
 ARM_FRACTION = 0.18         # cross half-arm as a fraction of the target spacing
@@ -196,3 +205,141 @@ def make_pattern(kind: str, profile, rows: int = 7, cols: int = 9, extent: float
     if kind == "circle":
         return _circle_pattern(profile, extent, mark, profile.beam.chord_tolerance_mm)
     return _lattice_pattern(kind, profile, rows, cols, extent, mark)
+
+
+# --- patterns without targets -------------------------------------------------------------------
+
+ZTIMING_DASH_MM = 20.0      # dash length on a screen wide enough for it
+ZTIMING_TICKS = 8
+
+
+@dataclass
+class StepSignal:
+    """The step pattern as channel samples.
+
+    Attributes
+    ----------
+    signal : (n, channels) float32
+        One period, in the profile's channel order and polarity; Z at the blank level.
+    names : list of str
+        The signal on each channel.
+    drive : (n, 2) float64
+        The X/Y drive before the channel map.
+    half_samples : int
+        Samples on each level (half a period).
+    notes : list of str
+        What the pattern is, for the terminal.
+    """
+
+    signal: np.ndarray
+    names: list
+    drive: np.ndarray
+    half_samples: int
+    notes: list
+
+
+def step_signal(profile, rate: int, channels: int, axis: str, amplitude: float = 0.5,
+                period_s: float = 0.02) -> StepSignal:
+    """One period of the step pattern of `axis` through `profile`'s channel map, beam blanked.
+
+    Parameters
+    ----------
+    profile : Profile
+        Its ``[output]`` table gives the channel order, the inversions and the Z blank level.
+    rate : int
+        Sample rate, Hz.
+    channels : int
+        2 (X, Y) or 3 (X, Y, Z).
+    axis : {'x', 'y'}
+        The axis that jumps; the other is held at 0.
+    amplitude : float
+        The drive jumps between -amplitude and +amplitude (full scale units).
+    period_s : float
+        One period of the square wave, s (an even number of samples).
+
+    Returns
+    -------
+    StepSignal
+
+    Raises
+    ------
+    InputError
+        From `calibration.response_fit.step_pattern`, naming the parameter.
+
+    Notes
+    -----
+    The drive goes to the channels as it is: no deflection model and no stage, because the
+    scope measures the yoke current the jump of drive makes, not the spot. Z stays at the blank
+    level throughout: the beam need not be lit for the measurement.
+
+    Examples
+    --------
+    >>> from vectorgen.profile import Profile
+    >>> s = step_signal(Profile(), 1000, 3, "y", amplitude=0.25, period_s=0.008)
+    >>> s.names, s.half_samples, s.signal[:, 1].tolist()
+    (['x', 'y', 'z'], 4, [-0.25, -0.25, -0.25, -0.25, 0.25, 0.25, 0.25, 0.25])
+    >>> float(abs(s.signal[:, [0, 2]]).max())
+    0.0
+    """
+    from .response_fit import step_pattern
+
+    drive = step_pattern(rate, axis, amplitude, period_s, cycles=1)
+    n = len(drive)
+    cmap = ChannelMap(profile.output, channels)
+    signal = cmap.to_channels(drive, np.zeros(n), np.zeros(n, dtype=bool))
+    half = n // 2
+    notes = [f"{axis} jumps between {-amplitude:g} and +{amplitude:g} of full scale every "
+             f"{1e3 * half / rate:.4g} ms (period {1e3 * n / rate:.4g} ms), "
+             f"{'xy'.replace(axis, '')} held at 0"]
+    if cmap.has_z:
+        notes.append("Z is blanked throughout: the scope measures the yoke current, the beam "
+                     "need not be lit")
+    else:
+        notes.append("there is no Z channel: the beam stays lit and dwells on two spots, so "
+                     "turn the brightness right down (the scope measures the yoke current, the "
+                     "beam need not be lit)")
+    return StepSignal(signal, cmap.names, drive, half, notes)
+
+
+def ztiming_strokes(profile, writing_speed_mm_per_s: float):
+    """The Z timing pattern (`vectorgen.interface.z_timing_pattern`) for the profile's screen,
+    as Strokes to render in the order given (rows alternate direction).
+
+    Parameters
+    ----------
+    profile : Profile
+        Its screen sets the dash length (at most ZTIMING_DASH_MM, 40 % of the width).
+    writing_speed_mm_per_s : float
+        The speed the dashes are drawn at, which sets the scale of the ticks.
+
+    Returns
+    -------
+    (Strokes, ZTimingPattern)
+
+    Raises
+    ------
+    InputError
+        A speed at which not even one tick fits in half a dash.
+
+    Examples
+    --------
+    >>> from vectorgen.profile import Profile
+    >>> strokes, pat = ztiming_strokes(Profile(), 20000.0)
+    >>> len(pat.dashes), pat.tick_us, len(pat.ticks)
+    (6, 50.0, 18)
+    """
+    from vectorgen.interface import z_timing_pattern
+
+    half_w = profile.screen.half_extent[0]
+    dash = min(ZTIMING_DASH_MM, 0.8 * half_w)
+    probe = z_timing_pattern(writing_speed_mm_per_s, dash_mm=dash, ticks=1)
+    spacing = probe.tick_us * probe.mm_per_us
+    ticks = min(ZTIMING_TICKS, int(np.floor(dash / 2 / spacing + 1e-9)))
+    if ticks < 1:
+        raise VectorgenError(f"at {writing_speed_mm_per_s:g} mm/s one tick of the Z timing "
+                             f"scale is {spacing:.3g} mm, more than half a {dash:g} mm dash: "
+                             f"write faster", "speed")
+    pat = z_timing_pattern(writing_speed_mm_per_s, dash_mm=dash, ticks=ticks)
+    labels = ([f"z timing row {i + 1}" for i in range(len(pat.dashes))]
+              + [f"z timing tick {i + 1}" for i in range(len(pat.ticks))])
+    return strokes_from_polylines(pat.polylines, labels=labels), pat

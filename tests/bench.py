@@ -37,6 +37,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 REPO = HERE.parent
 sys.path.insert(0, str(REPO))
+sys.path.insert(0, str(HERE))
 
 RATE = 96_000
 SEGMENTS = 5_000
@@ -426,7 +427,19 @@ def main() -> int:
         results.append(("start-up (vectorgen --help)", f"<= {TARGET_STARTUP} s",
                         f"{t_help:.3f} s", t_help <= TARGET_STARTUP))
 
-    # 4. live soak, another engineer's file
+        # 4. at the spot: interface, lag, ordering (tests/bench_spot.py)
+        import bench_spot
+
+        spot_targets, spot_info = bench_spot.spot_section()
+        results.extend(spot_targets)
+        info.extend(spot_info)
+        print("  per-frame render path with the hardware declared (5,000-segment drawing):")
+        for label, sps_ in bench_spot.throughput(strokes, renderer):
+            print(f"    {label:36s}: {sps_ / 1e6:6.2f} M samples/s")
+            results.append((f"per-frame path, {label}", ">= 10 M/s", f"{sps_ / 1e6:.2f} M/s",
+                            sps_ >= TARGET_SPS))
+
+    # 5. live soak, another engineer's file
     live = HERE / "bench_live.py"
     if live.exists() and shutil.which("jackd"):
         print("\nlive soak (tests/bench_live.py):")

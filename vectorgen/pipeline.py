@@ -19,7 +19,7 @@ from .channels import ChannelMap
 from .clip import clip_parts
 from .correction import check_full_scale, check_true_peak, plan_signal
 from .deflection import DeflectionModel
-from .errors import FullScaleError, InputError, VectorgenWarning
+from .errors import FullScaleError, InputError, VectorgenError, VectorgenWarning
 from .stages import Stage, StageChain
 from .strokes import Strokes, check_finite
 
@@ -109,6 +109,13 @@ class Settings:
     slow_to_fit : bool
         When `[drive]` cannot make the frame at this writing speed, slow down to fit instead
         of refusing.
+    switch_ready : bool
+        Frames that follow each other (a scene): balance their first moment too, so that an
+        AC-coupled output switches from one to the next without a transient (costs longer
+        balancing dwells).
+    check_drive : bool
+        With `[drive]`, refuse a frame the amplifier cannot make (False: render it anyway and
+        report what it needs, to say what can be reached).
     """
 
     rate: int = 48000
@@ -120,6 +127,8 @@ class Settings:
     compensate: bool = True
     balance: bool = True
     slow_to_fit: bool = False
+    switch_ready: bool = False
+    check_drive: bool = True
 
     def check(self) -> None:
         """Raise `InputError` (naming the parameter) for an impossible setting."""
@@ -236,6 +245,10 @@ class Frame:
             c = float(np.abs(self.corrected).max())
             rep["compensation_peak_boost"] = _r(float(np.abs(self.drive).max()) / c if c else 1.0)
         rep["jump_samples"] = int(p.jump_samples)
+        bound = self._renderer.lower_bound(p)
+        rep["lower_bound_samples"] = bound
+        rep["frame_time_ratio"] = round(self.samples / bound, 4) if bound else None
+        rep["lit_duty_cycle"] = round(float(p.lit.sum()) / self.samples, 4)
         if profile.output.volts_full_scale:
             rep["peak_volts"] = round(peak * profile.output.volts_full_scale, 6)
         return rep
@@ -247,7 +260,9 @@ def report_line(rep: dict) -> str:
             f"{rep['refresh_hz']:.1f} Hz refresh; {rep['strokes']} strokes, drawn "
             f"{rep['drawn_length_mm']:.1f} mm at {rep['writing_speed_mm_per_s'] / 1000:.2f} m/s "
             f"({rep['point_spacing_mm']:.3f} mm/sample); {rep['blanked_moves']} blanked moves "
-            f"over {rep['blanked_length_mm']:.1f} mm; peak drive {rep['peak_drive']:.3f}")
+            f"over {rep['blanked_length_mm']:.1f} mm; peak drive {rep['peak_drive']:.3f}"
+            + (f"; frame {rep['frame_time_ratio']:.2f} x its lower bound, lit "
+               f"{100 * rep['lit_duty_cycle']:.0f} %" if rep.get("frame_time_ratio") else ""))
 
 
 class Renderer:
@@ -359,25 +374,30 @@ class Renderer:
                              "area of the screen")
         if self.settings.ordering != "input":
             clipped = merged(clipped, self.profile.beam.chord_tolerance_mm)
-        plan = plan_frame(clipped, self.timing, self.target, self.settings.ordering,
-                          self.jumps, self.speed_cap if self.target is None else None)
-        del clipped
+        plan = self._plan(clipped, self.timing)
         notes: list[str] = []
         extra: dict = {}
-        if self.balancing:
-            plan = self._balanced(plan, notes, extra)
-        elif self.profile.output.highpass_hz > 0:
-            shift = self.model.matrix @ self.model.drive_from_xy(plan.x, plan.y).mean(axis=0)
-            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(-shift)}
-            notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
-                         f"({-shift[0]:.2f}, {-shift[1]:.2f}) mm (balancing is off)")
-        signal, peak, drive, tp = plan_signal(plan, self.model, self.chain, self.cmap,
-                                              self.rate, self.checks_true_peak)
-        if tp is not None:
-            extra["true_peak"] = _r(tp)
-            if tp > 1.0:
-                notes.append(f"true peak {tp:.4f}: the interface clips {100 * (tp - 1):.2f} % of "
-                             f"full scale between samples near the edge")
+        auto = self.auto_speed and plan.samples > self.rate / self.profile.beam.refresh_target_hz
+        if auto:
+            plan, reached = self._faster(clipped, plan)
+            extra["writing_speed_auto"] = True
+            if not reached:
+                notes.append(self._too_slow(clipped, plan))
+        while True:
+            try:
+                signal, peak, drive, balanced = self._signal(plan, notes, extra)
+                break
+            except FullScaleError:
+                # a faster writing speed stops harder at stroke ends: back off towards the
+                # profile's speed before refusing
+                speed = plan.drawn_length_mm / max(plan.moving_samples, 1) * self.rate
+                if not auto or speed <= self.profile.beam.writing_speed_mm_per_s * 1.01:
+                    raise
+                slower = max(self.profile.beam.writing_speed_mm_per_s, 0.8 * speed)
+                plan = self._plan(clipped, Timing.from_beam(self.profile.beam, self.rate,
+                                                            slower))
+        plan = balanced
+        del clipped
         if self.z_shift and self.cmap.has_z:
             self._delay_z(signal, plan)
         frame = Frame(signal, self.cmap.names, plan, self.rate, self, drive, peak, n_clipped)
@@ -397,6 +417,109 @@ class Renderer:
         for w in frame.warnings:
             warnings.warn(w, VectorgenWarning, stacklevel=2)
         return frame
+
+    def lower_bound(self, plan) -> int:
+        """The fewest samples a frame of this drawing can take at this writing speed: its
+        drawing and dwells as planned, plus for every stroke the time of the jump to the
+        nearest end of another stroke (every stroke must be left by a jump at least that
+        long; a lone closed stroke needs none)."""
+        lit = int(plan.lit.sum())
+        S = plan.stroke_count
+        if S < 2:
+            return lit
+        from .tour import _knn
+
+        st = plan.strokes
+        starts, ends = st.end_points()
+        pts = np.vstack([starts, ends])
+        owner = np.concatenate([np.arange(S), np.arange(S)])
+        k = min(len(pts), 3)
+        d, j = _knn(pts, ends, k)
+        d = np.where(owner[j] == np.arange(S)[:, None], np.inf, d)
+        nearest = d.min(axis=1)
+        nearest = np.where(np.isfinite(nearest), nearest, 0.0)
+        return lit + int(np.sum(self.jumps.cost(nearest)))
+
+    def _signal(self, plan, notes, extra):
+        """Balancing, correction, the stages, the checks and the channel map for a plan:
+        (signal, peak |drive|, the final drive or None, the plan as played)."""
+        if self.balancing:
+            plan = self._balanced(plan, notes, extra)
+        elif self.profile.output.highpass_hz > 0:
+            shift = self.model.matrix @ self.model.drive_from_xy(plan.x, plan.y).mean(axis=0)
+            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(-shift)}
+            notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
+                         f"({-shift[0]:.2f}, {-shift[1]:.2f}) mm (balancing is off)")
+        signal, peak, drive, tp = plan_signal(plan, self.model, self.chain, self.cmap,
+                                              self.rate, self.checks_true_peak)
+        if tp is not None:
+            extra["true_peak"] = _r(tp)
+            if tp > 1.0:
+                notes.append(f"true peak {tp:.4f}: the interface clips {100 * (tp - 1):.2f} % of "
+                             f"full scale between samples near the edge")
+        return signal, peak, drive, plan
+
+    # -- frame time: the writing speed follows the refresh target ----------------------------
+    @property
+    def auto_speed(self) -> bool:
+        """Whether the writing speed may rise above the profile's to reach refresh_target_hz
+        (not when the speed, the refresh or the frame length is set)."""
+        s, b = self.settings, self.profile.beam
+        return (s.speed is None and self.target is None and b.refresh_target_hz > 0
+                and b.max_writing_speed_mm_per_s > b.writing_speed_mm_per_s)
+
+    def _plan(self, strokes, timing):
+        return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
+                          self.speed_cap if self.target is None else None)
+
+    def _faster(self, strokes, plan):
+        """Re-plan at the writing speed that brings the frame to refresh_target_hz, at most the
+        profile's max_writing_speed_mm_per_s. Returns (plan, whether the target was reached)."""
+        b = self.profile.beam
+        want = int(self.rate / b.refresh_target_hz)
+        speed = b.writing_speed_mm_per_s
+        for _ in range(4):
+            fixed = plan.samples - plan.moving_samples
+            if want <= fixed:
+                speed = b.max_writing_speed_mm_per_s
+            else:
+                speed = min(b.max_writing_speed_mm_per_s,
+                            speed * plan.moving_samples / max(1, want - fixed) * 1.002)
+            plan = self._plan(strokes, Timing.from_beam(b, self.rate, speed))
+            if plan.samples <= want or speed >= b.max_writing_speed_mm_per_s:
+                break
+        return plan, plan.samples <= want
+
+    def _too_slow(self, strokes, plan) -> str:
+        """The warning for a frame that cannot reach the refresh target, with the refresh each
+        fix would give (worked out by planning it)."""
+        b = self.profile.beam
+        hz = self.rate / plan.samples
+        fixes = []
+        for label, rate, speed in (("a sample rate of {} Hz".format(2 * self.rate), 2 * self.rate,
+                                    b.max_writing_speed_mm_per_s),
+                                   ("a max_writing_speed_mm_per_s of {:g}".format(
+                                       2 * b.max_writing_speed_mm_per_s), self.rate,
+                                    2 * b.max_writing_speed_mm_per_s)):
+            try:
+                t = Timing.from_beam(b, rate, speed)
+                p = plan_frame(strokes, t, None, self.settings.ordering,
+                               self._jump_model_for(rate, t), None)
+                fixes.append(f"{label} gives {rate / p.samples:.0f} Hz")
+            except VectorgenError:
+                pass
+        fixes.append("dot marks instead of crosses, or less drawing, shorten the frame")
+        return (f"refresh {hz:.1f} Hz is below the {b.refresh_target_hz:g} Hz target even at "
+                f"the fastest writing speed ({b.max_writing_speed_mm_per_s / 1000:g} m/s): "
+                + "; ".join(fixes))
+
+    def _jump_model_for(self, rate, timing):
+        if isinstance(self.jumps, ShapedJumps):
+            return ShapedJumps(timing.jump_step_mm, timing.settle)
+        if isinstance(self.jumps, LagJumps):
+            return LagJumps(self.response, self.model, JUMP_DRIVE_LIMIT, rate,
+                            self.profile.beam.spot_mm, timing.settle)
+        return timing.jumps
 
     # -- the interface: true peak, balancing, Z timing ---------------------------------------
     @property
@@ -449,7 +572,8 @@ class Renderer:
         last_err = None
         # first with both conditions; where no reach keeps the drive within full scale, with
         # the mean alone (the picture is right; a live switch then shows a short transient)
-        tries = [(r, True) for r in BALANCE_REACHES] + [(r, False) for r in BALANCE_REACHES]
+        tries = ([(r, True) for r in BALANCE_REACHES] if self.settings.switch_ready else []) + \
+            [(r, False) for r in BALANCE_REACHES]
         for reach, moment in tries:
             try:
                 tail, info = self._balance_tail(S, M if moment else None, s0, n, reach)
@@ -477,7 +601,7 @@ class Renderer:
                                 "cost_fraction": round(len(tail) / n, 6),
                                 "residual_shift_mm": _r(-resid),
                                 "switch_ready": bool(moment)}
-            if not moment:
+            if self.settings.switch_ready and not moment:
                 notes.append("frame balanced for its mean only (its first moment would need "
                              "more drive than is left): a live switch from or to this frame "
                              "shows a short transient of the AC coupling")
@@ -568,7 +692,7 @@ class Renderer:
         needs = drive.needs(frame.corrected, self.rate)
         reach = drive.reach(needs)
         frame.extra["drive"] = _drive_report(needs, reach)
-        if reach["deflection"] >= 1.0 - 1e-9:
+        if reach["deflection"] >= 1.0 - 1e-9 or not self.settings.check_drive:
             return
         lines = drive.verdict_lines(needs)
         if self.settings.slow_to_fit and reach["speed"] > 0:

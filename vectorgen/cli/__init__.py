@@ -24,6 +24,7 @@ COMMAND_MODULES = (
     "vectorgen.cli.demo",
     "vectorgen.cli.calibrate",
     "vectorgen.cli.live",
+    "vectorgen.cli.measure",
 )
 
 

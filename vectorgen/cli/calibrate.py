@@ -45,7 +45,7 @@ def _check_finite(value, option: str):
 def cmd_pattern(args) -> int:
     import numpy as np
 
-    from calibration.patterns import make_pattern
+    from calibration.patterns import SIGNAL_PATTERNS, make_pattern
     from calibration.sheet import write_sheet
 
     from ..files import check_output_path
@@ -57,6 +57,11 @@ def cmd_pattern(args) -> int:
     if args.output is None and not args.play:
         raise VectorgenError("give -o OUT to write the pattern to a file, or --play to show it "
                              "live (or both)")
+    if args.kind in SIGNAL_PATTERNS:
+        return _signal_pattern(args)
+    if args.sheet is None:
+        raise VectorgenError(f"the {args.kind} pattern writes its measurement sheet: give "
+                             f"--sheet SHEET.csv")
     if args.play:
         from .. import live
 
@@ -100,6 +105,161 @@ def cmd_pattern(args) -> int:
 
         return play_frame(frame, profile, args.device, args.seconds, args.quiet)
     return 0
+
+
+def _signal_pattern(args) -> int:
+    """`pattern step` and `pattern ztiming`: no targets, so no sheet."""
+    from ..files import check_output_path
+    from ..sinks import signal_extensions
+    from .render import _check_seconds
+
+    if args.sheet is not None:
+        raise VectorgenError(f"the {args.kind} pattern has no targets to measure and writes no "
+                             f"sheet: leave out --sheet")
+    if args.play:
+        from .. import live
+
+        live.sounddevice()                  # PortAudio present? (before any file is written)
+    if args.output is not None:
+        check_output_path(args.output, signal_extensions())
+    if args.preview:
+        check_output_path(args.preview, (".png",))
+    _check_seconds(args.seconds)
+    if args.kind == "step":
+        return _step_pattern(args)
+    return _ztiming_pattern(args)
+
+
+def _step_pattern(args) -> int:
+    import numpy as np
+
+    from calibration.patterns import step_signal
+
+    from ..sinks import write_signal
+    from .render import load_setup, repeats_for
+
+    if args.axis is None:
+        raise VectorgenError("the step pattern jumps on one axis: give --axis x or --axis y")
+    given = [o for o, v in (("--speed", args.speed), ("--refresh", args.refresh),
+                            ("--samples", args.samples)) if v is not None]
+    if given:
+        raise VectorgenError(f"the step pattern's timing is --period-ms: {', '.join(given)} "
+                             f"do not apply")
+    if args.preview:
+        raise VectorgenError("the step pattern keeps the beam blanked: there is no picture to "
+                             "preview (leave out --preview)")
+    amplitude = _check_finite(args.amplitude, "--amplitude")
+    if not 0 < amplitude <= 1:
+        raise VectorgenError(f"--amplitude must be above 0 and at most 1 (full scale; got "
+                             f"{amplitude:g})")
+    period_ms = _check_finite(args.period_ms, "--period-ms")
+    if not period_ms > 0:
+        raise VectorgenError(f"--period-ms must be above 0 (got {period_ms:g})")
+    profile, renderer = load_setup(args)
+    try:
+        step = step_signal(profile, renderer.rate, renderer.channels, args.axis, amplitude,
+                           period_ms * 1e-3)
+    except VectorgenError as exc:
+        flag = {"period_s": "--period-ms", "amplitude": "--amplitude"}.get(exc.parameter)
+        raise type(exc)(f"{exc} (option {flag})" if flag else str(exc), exc.parameter) from None
+    rate = renderer.rate
+    repeats = repeats_for(args.seconds, rate, len(step.signal))
+    if args.output is not None:
+        _check_size(repeats * step.signal.size)
+        write_signal(args.output, np.tile(step.signal, (repeats, 1)), rate, step.names,
+                     pcm16=args.pcm16)
+    if not args.quiet:
+        print("step pattern: " + "; ".join(step.notes)
+              + (f"; wrote {repeats} period(s) to {args.output}" if args.output else ""))
+        print(f"capture the {args.axis} yoke current (the voltage across its sense resistor) "
+              f"with a timebase showing some of the old level and five time constants after "
+              f"an edge, save it as CSV, then: vectorgen fit-response CAPTURE.csv --axis "
+              f"{args.axis} -o PROFILE.toml")
+    if args.play:
+        from types import SimpleNamespace
+
+        from .live import play_frame
+
+        return play_frame(SimpleNamespace(signal=step.signal, rate=rate), profile, args.device,
+                          args.seconds, args.quiet)
+    return 0
+
+
+def _ztiming_pattern(args) -> int:
+    import numpy as np
+
+    from calibration.patterns import ztiming_strokes
+
+    from ..pipeline import report_line
+    from ..preview import phosphor_image, write_png
+    from ..sinks import write_signal
+    from .render import load_setup, repeats_for
+
+    given = [o for o, v in (("--refresh", args.refresh), ("--samples", args.samples))
+             if v is not None]
+    if given:
+        raise VectorgenError(f"the Z timing scale is read at a known writing speed: set it with "
+                             f"--speed, not {', '.join(given)}")
+    if args.order not in (None, "input"):
+        raise VectorgenError("the Z timing pattern is drawn in its own order (the rows run "
+                             "alternately left to right and right to left): leave out --order")
+    args.order = "input"
+    profile, renderer = load_setup(args)
+    speed = args.speed if args.speed is not None else profile.beam.writing_speed_mm_per_s
+    strokes, pat = ztiming_strokes(profile, speed)
+    frame = renderer.frame(strokes)
+    drawn = _dash_speed(frame.plan, len(pat.dashes), renderer.rate)
+    if abs(drawn / speed - 1) > 0.01:
+        # the renderer drew the dashes at another speed (a lagging deflection slows them): the
+        # scale must be the one they are drawn at; the dashes themselves do not change
+        strokes, pat = ztiming_strokes(profile, drawn)
+        frame = renderer.frame(strokes)
+    repeats = repeats_for(args.seconds, renderer.rate, frame.samples)
+    if args.output is not None:
+        _check_size(repeats * frame.signal.size)
+    if renderer.channels < 3:
+        _warn("the Z timing pattern needs the Z channel (--channels 3 or [output] channels = 3): "
+              "without it every jump between the dashes is lit too")
+    if args.output is not None:
+        write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
+                     frame.names, pcm16=args.pcm16)
+    if args.preview:
+        write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
+                                               frame.plan.lit, chain=renderer.chain,
+                                               rate=renderer.rate))
+    if not args.quiet:
+        print(report_line(frame.report(profile)) + (f"; wrote {repeats} frame(s) to "
+                                                    f"{args.output}" if args.output else ""))
+        print(pat.text)
+    if args.play:
+        from .live import play_frame
+
+        return play_frame(frame, profile, args.device, args.seconds, args.quiet)
+    return 0
+
+
+def _check_size(values: int) -> None:
+    from .render import MAX_OUTPUT_BYTES
+
+    if values * 4 > MAX_OUTPUT_BYTES:
+        raise VectorgenError(f"the output would be {values * 4 / 2**30:.1f} GiB, over the 4 GiB "
+                             f"a WAV file can hold; shorten --seconds or lower --rate")
+
+
+def _dash_speed(plan, dashes: int, rate: int) -> float:
+    """The speed the first `dashes` strokes were drawn at, mm/s: the median step between lit
+    samples of those strokes that move (dwells at their ends left out)."""
+    import numpy as np
+
+    x, y = np.asarray(plan.x), np.asarray(plan.y)
+    lit = np.asarray(plan.lit) & (np.asarray(plan.stroke) < dashes)
+    both = lit[:-1] & lit[1:] & (np.asarray(plan.stroke)[:-1] == np.asarray(plan.stroke)[1:])
+    step = np.hypot(np.diff(x), np.diff(y))[both]
+    step = step[step > 1e-9]
+    if not step.size:
+        raise VectorgenError("the Z timing dashes were not drawn (are they inside the usable "
+                             "area?)")
+    return float(np.median(step)) * rate
 
 
 # --- fit ----------------------------------------------------------------------------------------
@@ -249,8 +409,13 @@ def register(sub) -> None:
         "measured_x_mm, measured_y_mm, the measured columns empty for you to fill in (mm from "
         "the centre of the face, +x right, +y up). grid: ROWS x COLS targets for the full fit "
         "and linearity; box: centre and four corners for a quick gain trim; circle: a circle "
-        "in the drawing with ticks every 45 degrees, for an aspect check.")
-    p.add_argument("kind", choices=("grid", "box", "circle"), metavar="grid|box|circle")
+        "in the drawing with ticks every 45 degrees, for an aspect check. Two patterns have no "
+        "targets and no sheet: step, a slow square wave of jumps on one axis with the beam "
+        "blanked, to capture the yoke current for `vectorgen fit-response`; ztiming, rows of "
+        "dashes drawn alternately left to right and right to left over a scale of ticks, that "
+        "shows how early or late Z acts.")
+    p.add_argument("kind", choices=("grid", "box", "circle", "step", "ztiming"),
+                   metavar="grid|box|circle|step|ztiming")
     p.add_argument("--play", action="store_true",
                    help="show the pattern live through the audio interface (until Ctrl-C or "
                         "--seconds)")
@@ -258,8 +423,9 @@ def register(sub) -> None:
                    help="with --play: the output device (see 'vectorgen devices')")
     p.add_argument("-o", "--output", default=None, metavar="OUT",
                    help="signal file: .wav, .csv, .raw or .bin")
-    p.add_argument("--sheet", required=True, metavar="SHEET.csv",
-                   help="measurement sheet to write (an existing file is kept as SHEET.csv.bakN)")
+    p.add_argument("--sheet", default=None, metavar="SHEET.csv",
+                   help="measurement sheet to write (an existing file is kept as SHEET.csv.bakN;"
+                        " grid, box and circle)")
     p.add_argument("--rows", type=int, default=7, help="grid rows (default 7)")
     p.add_argument("--cols", type=int, default=9, help="grid columns (default 9)")
     p.add_argument("--extent", type=float, default=0.9, metavar="FRACTION",
@@ -267,6 +433,13 @@ def register(sub) -> None:
                         "profile (default 0.9)")
     p.add_argument("--mark", choices=("cross", "dot"), default="cross",
                    help="mark each target with a small cross (default) or a dot")
+    p.add_argument("--axis", choices=("x", "y"), default=None,
+                   help="step: the axis that jumps (the other is held at 0)")
+    p.add_argument("--amplitude", type=float, default=0.5, metavar="FRACTION",
+                   help="step: jump between -FRACTION and +FRACTION of full scale (default 0.5)")
+    p.add_argument("--period-ms", type=float, default=20.0, metavar="MS",
+                   help="step: one period of the square wave (default 20 ms, 10 ms on each "
+                        "level: make half a period ten time constants of the yoke or more)")
     p.add_argument("--seconds", type=float, default=None,
                    help="repeat frames to this duration; with --play, stop after it")
     p.add_argument("--pcm16", action="store_true", help="16-bit integer samples")

@@ -54,11 +54,14 @@ def load_setup(args, stages=()):
     ordering = getattr(args, "order", None) or ("input" if args.keep_order else "tour")
     if args.keep_order and getattr(args, "order", None) not in (None, "input"):
         raise InputError("--keep-order and --order say different things: give one")
+    from .source_options import source_kind
+
+    scene = getattr(args, "source", None) is not None and source_kind(args) == "scene"
     settings = Settings(rate=args.rate, channels=args.channels, speed=args.speed,
                         refresh=args.refresh, frame_samples=args.samples, ordering=ordering,
                         compensate=not getattr(args, "no_compensation", False),
                         balance=not getattr(args, "no_balance", False),
-                        slow_to_fit=getattr(args, "slow_to_fit", False))
+                        slow_to_fit=getattr(args, "slow_to_fit", False), switch_ready=scene)
     return profile, Renderer(profile, settings, stages)
 
 
