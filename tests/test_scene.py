@@ -62,7 +62,9 @@ def write_scene(folder, body: str, name: str = "scene.py") -> str:
 
 def test_clock_hands_turn_by_the_right_angle_between_two_times():
     prof = bench_profile()
-    renderer = Renderer(prof, Settings(rate=48000))
+    # in the given order: the hands meet at the centre, and joining strokes whose ends meet
+    # would draw both as one stroke (the test finds each hand by its label)
+    renderer = Renderer(prof, Settings(rate=48000, ordering="input"))
     t1 = 10 * 3600 + 10 * 60            # 10:10:00
     t2 = 10 * 3600 + 35 * 60            # 10:35:00, 25 minutes later
     f1 = scene_timeline(str(CLOCK), renderer, None, start=t1)[0][0]
