@@ -97,8 +97,8 @@ def spot_section():
                               "demo.svg"), _render(text)[0].screen)
     clock = shape("clock", _render(text)[0].screen)
     for label, drawing in (("demo", demo), ("clock face", clock), ("text", text)):
-        a = _render(drawing)[1].samples
-        b = _render(drawing, output={"band_limited": False})[1].samples
+        a = _render(drawing, speed=20000.0)[1].samples
+        b = _render(drawing, output={"band_limited": False}, speed=20000.0)[1].samples
         print(f"  frame time with band-limited jumps, {label:10s}: {a} samples vs {b} with "
               f"one-sample jumps (+{100 * (a / b - 1):.1f} %)")
         info.append((f"band-limited jump cost, {label}", f"+{100 * (a / b - 1):.1f} %"))
@@ -137,7 +137,7 @@ def spot_section():
     samples = {}
     for comp in (True, False):
         prof, f = _render(card, rate=RATE96, channels=2, output={"band_limited": False},
-                          response={"tau_us": [300, 300]}, compensate=comp)
+                          response={"tau_us": [300, 300]}, compensate=comp, speed=20000.0)
         drive = np.tile(f.signal[:, :2].astype(float), (6, 1))
         tt = np.arange(len(drive)) / RATE96
         spot = np.column_stack([sps.lsim(lag, drive[:, k], tt)[1] for k in range(2)])[-f.samples:]

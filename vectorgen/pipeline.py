@@ -30,6 +30,7 @@ JUMP_DRIVE_LIMIT = 0.95      # a lagging deflection's jumps leave headroom for t
 LIT_DRIVE_LIMIT = 0.9        # strokes slow down where their compensated drive would pass this
                              # (the rest is headroom for the ringing of a sudden start or stop)
 BALANCE_REACHES = (0.9, 0.7, 0.5, 0.35, 0.25)
+MIN_CAP_FRACTION = 0.05      # the slowest a drive limit makes a stroke, of the writing speed
 
 
 def stages_for(profile, response=None) -> list:
@@ -301,7 +302,7 @@ class Renderer:
         self.chain = self.hardware_chain if settings.compensate else StageChain()
         self.cmap = ChannelMap(profile.output, self.channels)
         self.jumps = self._jump_model()
-        self.speed_cap = self._speed_cap() if settings.compensate else None
+        self.speed_cap = self._speed_cap(self.rate) if settings.compensate else None
         if settings.refresh is not None:
             self.target = max(1, int(round(self.rate / settings.refresh)))
         else:
@@ -319,12 +320,16 @@ class Renderer:
             return ShapedJumps(t.jump_step_mm, t.settle)
         return t.jumps
 
-    def _speed_cap(self):
+    def _speed_cap(self, rate: int):
         """The largest point spacing per piece for which a lagging deflection's compensated
-        drive stays within LIT_DRIVE_LIMIT (None for an ideal response)."""
+        drive stays within LIT_DRIVE_LIMIT (None for an ideal response). A stroke that runs
+        into full scale can only creep up to it (a lag reaches its limit in no finite time):
+        it is drawn no slower than MIN_CAP_FRACTION of the writing speed, and the full-scale
+        check says when even that is too fast."""
         if self.response.order == 0:
             return None
-        model, rate, resp = self.model, self.rate, self.response
+        floor = MIN_CAP_FRACTION * self.timing.spacing_mm * self.rate
+        model, resp = self.model, self.response
         inv = np.linalg.inv(model.matrix)
 
         lag = np.asarray(resp.lag_s, dtype=float)
@@ -339,9 +344,8 @@ class Renderer:
                 s = np.where((np.abs(d) > 0) & (lag > 0), room / (lag * np.abs(d)), np.inf)
             return s.min(axis=1)
 
-        def cap(px, py, a, b):
-            # each segment's speed limit at both its ends, travelling along it; a piece's
-            # limit is the least over its segments a .. b - 1
+        def cap(px, py):
+            # each segment's speed limit at both its ends, travelling along it
             u = model.drive_from_xy(px, py)
             d_mm = np.column_stack([np.diff(px), np.diff(py)])
             d_fs = d_mm @ inv.T
@@ -351,10 +355,7 @@ class Renderer:
             lim = np.minimum(axis_speed(u[:-1], unit), axis_speed(u[1:], unit))
             mm_s = np.where((fs_per_mm > 0) & (norm_mm > 0),
                             lim / np.maximum(fs_per_mm, 1e-300), np.inf)
-            mm_s = np.append(mm_s, np.inf)
-            bounds = np.column_stack([a, b]).ravel()
-            per_piece = np.minimum.reduceat(mm_s, bounds)[::2]
-            return np.maximum(per_piece, 1e-6) / rate
+            return np.maximum(mm_s, floor) / rate
         return cap
 
     def frame(self, strokes: Strokes) -> Frame:
@@ -504,14 +505,16 @@ class Renderer:
             try:
                 t = Timing.from_beam(b, rate, speed)
                 p = plan_frame(strokes, t, None, self.settings.ordering,
-                               self._jump_model_for(rate, t), None)
+                               self._jump_model_for(rate, t),
+                               self._speed_cap(rate) if self.settings.compensate else None)
                 fixes.append(f"{label} gives {rate / p.samples:.0f} Hz")
             except VectorgenError:
                 pass
         fixes.append("dot marks instead of crosses, or less drawing, shorten the frame")
+        limit = (f"the fastest writing speed ({b.max_writing_speed_mm_per_s / 1000:g} m/s)"
+                 if self.speed_cap is None else "the fastest the deflection's lag allows")
         return (f"refresh {hz:.1f} Hz is below the {b.refresh_target_hz:g} Hz target even at "
-                f"the fastest writing speed ({b.max_writing_speed_mm_per_s / 1000:g} m/s): "
-                + "; ".join(fixes))
+                f"{limit}: " + "; ".join(fixes))
 
     def _jump_model_for(self, rate, timing):
         if isinstance(self.jumps, ShapedJumps):

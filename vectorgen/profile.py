@@ -65,7 +65,8 @@ class Deflection:
 @dataclass
 class Beam:
     writing_speed_mm_per_s: float = 20000.0     # the slowest (brightest) speed drawn at
-    max_writing_speed_mm_per_s: float = 100000.0    # the speed may rise to this ...
+    max_writing_speed_mm_per_s: float = 100000.0    # the speed may rise to this (when above
+                                                    # writing_speed_mm_per_s) ...
     refresh_target_hz: float = 40.0                 # ... to keep the refresh at least this
     jump_speed_mm_per_s: float = 0.0        # 0 = no limit: a blanked jump is one sample
     settle_us: float = 60.0
@@ -304,10 +305,6 @@ def _check_whole(prof: Profile, source: str) -> None:
     s = prof.screen
     if s.shape == "round" and not s.diameter_mm > 0:
         raise ProfileError(f"{source}: [screen] diameter_mm is required when shape = 'round'")
-    if prof.beam.max_writing_speed_mm_per_s < prof.beam.writing_speed_mm_per_s:
-        raise ProfileError(f"{source}: [beam] max_writing_speed_mm_per_s "
-                           f"({prof.beam.max_writing_speed_mm_per_s:g}) must be at least "
-                           f"writing_speed_mm_per_s ({prof.beam.writing_speed_mm_per_s:g})")
     if prof.output.channels == 3 and "z" not in prof.output.channel_order(3):
         raise ProfileError(f"{source}: [output] order must include 'z' for 3 channels")
 

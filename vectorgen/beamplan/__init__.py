@@ -35,6 +35,8 @@ __all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "LagJumps", "Plan", "ShapedJumps", 
            "turn_deg", "CHUNK", "GAP"]
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
+CAP_STEP_MM = 2.0       # with a drive limit, strokes are cut into segments at most this long ...
+CAP_BREAK = 1.25        # ... and a piece ends where the allowed speed changes by more than this
 
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
@@ -55,9 +57,11 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         How blanked jumps move (`jumps.StraightJumps`, `ShapedJumps`, `LagJumps`); default the
         timing's straight jumps.
     speed_cap : callable, optional
-        ``speed_cap(px, py, piece_first, piece_last) -> (P,) spacing_mm``: the largest point
-        spacing each piece may be drawn at (the drive's limits); pieces whose writing speed
-        would need more drive than is left get more steps.
+        ``speed_cap(px, py) -> (P - 1,) spacing_mm``: the largest point spacing each segment
+        (vertex i to i + 1) may be drawn at (the drive's limits). Strokes are then cut into
+        segments of at most CAP_STEP_MM, a piece ends (with no dwell) wherever the cap changes
+        by more than CAP_BREAK, and every piece is drawn no faster than its segments allow:
+        strokes slow down where their speed needs more drive than is left, and only there.
 
     Returns
     -------
@@ -82,6 +86,16 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     strategy = ORDERINGS[ordering]
     jumps = timing.jumps if jumps is None else jumps
     px, py, offs, stroke_intensity, drawn = _ordered(strokes, strategy, jumps)
+    if speed_cap is not None:
+        px, py, offs = _densified(px, py, offs, CAP_STEP_MM)
+        if callable(drawn):
+            drawn_offs = offs
+
+            def drawn(make=drawn):
+                st = make()
+                return Strokes(np.column_stack([px, py]), drawn_offs, st.intensity, st.labels)
+        else:
+            drawn = Strokes(np.column_stack([px, py]), offs, drawn.intensity, drawn.labels)
     S = len(offs) - 1
     first, last = offs[:-1], offs[1:] - 1
 
@@ -94,7 +108,17 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
     # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
-    boundary = sharp.copy()
+    soft = np.zeros(len(px), dtype=bool)         # piece ends with no dwell: the cap changes
+    if speed_cap is not None and len(px) > 1:
+        seg_cap = speed_cap(px, py)
+        seg_cap[is_last[:-1]] = np.inf             # the gap from one stroke to the next
+        c_in, c_out = seg_cap[:-1], seg_cap[1:]
+        lo = np.minimum(c_in, c_out)
+        soft[1:-1] = (np.maximum(c_in, c_out) > lo * CAP_BREAK) & np.isfinite(lo)
+        soft &= ~sharp
+        soft[first] = False
+        soft[last] = False
+    boundary = sharp | soft
     boundary[first] = True
     boundary[last] = True
     bidx = np.flatnonzero(boundary)
@@ -105,6 +129,7 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     piece_len = s[b] - s[a]
     start_rep, piece_rep, closed_sharp = dwells(px, py, first, last, lengths, piece_stroke,
                                                 is_last[b], timing)
+    piece_rep[soft[b]] = 0
 
     # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).
     nxt = np.roll(np.arange(S), -1)
@@ -119,7 +144,8 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
                                      start_rep)
     if speed_cap is not None and len(piece_len):
         # the drive's limits: a piece may need more steps than the writing speed gives it
-        cap = speed_cap(px, py, a, b)
+        seg = np.append(seg_cap, np.inf)
+        cap = np.minimum.reduceat(seg, np.column_stack([a, b]).ravel())[::2]
         piece_n = np.maximum(piece_n, np.ceil(piece_len / cap - 1e-9).astype(np.int64))
     n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
     if n_total > MAX_FRAME_SAMPLES:
@@ -168,6 +194,30 @@ def _ordered(strokes, strategy, jumps):
     def drawn():
         return Strokes(np.column_stack([px, py]), offs, intensity, [labels[i] for i in order])
     return px, py, offs, intensity, drawn
+
+
+def _densified(px, py, offs, most_mm: float):
+    """The vertices with every segment longer than `most_mm` cut into equal parts (the new
+    vertices lie on the segment: the drawing is unchanged), and the new offsets."""
+    P = len(px)
+    if P < 2:
+        return px, py, offs
+    seg = np.hypot(np.diff(px), np.diff(py))
+    gap = np.zeros(P - 1, dtype=bool)
+    gap[offs[1:-1] - 1] = True
+    parts = np.where(gap, 1, np.maximum(1, np.ceil(seg / most_mm))).astype(np.int64)
+    if (parts == 1).all():
+        return px, py, offs
+    # vertex i is followed by parts[i] - 1 new ones
+    count = np.concatenate([parts, [1]])
+    start = np.repeat(np.arange(P), count)
+    k = np.arange(int(count.sum())) - np.repeat(np.cumsum(count) - count, count)
+    frac = k / np.repeat(count, count)
+    nxt = np.minimum(start + 1, P - 1)
+    nx = px[start] + (px[nxt] - px[start]) * frac
+    ny = py[start] + (py[nxt] - py[start]) * frac
+    new_index = np.cumsum(count) - count            # where each old vertex now is
+    return nx, ny, np.concatenate([new_index[offs[:-1]], [len(nx)]]).astype(np.int64)
 
 
 def _reordered_offsets(offsets: np.ndarray, order: np.ndarray) -> np.ndarray:
