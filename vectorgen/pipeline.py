@@ -19,7 +19,7 @@ from .channels import ChannelMap
 from .clip import clip_parts
 from .correction import check_full_scale, check_true_peak, plan_signal
 from .deflection import DeflectionModel
-from .errors import FullScaleError, InputError, VectorgenError, VectorgenWarning
+from .errors import FullScaleError, InputError, VectorgenWarning
 from .stages import Stage, StageChain
 from .strokes import Strokes, check_finite
 
@@ -479,7 +479,7 @@ class Renderer:
         b = self.profile.beam
         want = int(self.rate / b.refresh_target_hz)
         speed = b.writing_speed_mm_per_s
-        for _ in range(4):
+        for _ in range(3):
             fixed = plan.samples - plan.moving_samples
             if want <= fixed:
                 speed = b.max_writing_speed_mm_per_s
@@ -492,37 +492,31 @@ class Renderer:
         return plan, plan.samples <= want
 
     def _too_slow(self, strokes, plan) -> str:
-        """The warning for a frame that cannot reach the refresh target, with the refresh each
-        fix would give (worked out by planning it)."""
+        """The warning for a frame that cannot reach the refresh target, with about the refresh
+        each fix would give (worked out from the frame's make-up: drawing, jumps, dwells)."""
         b = self.profile.beam
-        hz = self.rate / plan.samples
-        fixes = []
-        for label, rate, speed in (("a sample rate of {} Hz".format(2 * self.rate), 2 * self.rate,
-                                    b.max_writing_speed_mm_per_s),
-                                   ("a max_writing_speed_mm_per_s of {:g}".format(
-                                       2 * b.max_writing_speed_mm_per_s), self.rate,
-                                    2 * b.max_writing_speed_mm_per_s)):
-            try:
-                t = Timing.from_beam(b, rate, speed)
-                p = plan_frame(strokes, t, None, self.settings.ordering,
-                               self._jump_model_for(rate, t),
-                               self._speed_cap(rate) if self.settings.compensate else None)
-                fixes.append(f"{label} gives {rate / p.samples:.0f} Hz")
-            except VectorgenError:
-                pass
-        fixes.append("dot marks instead of crosses, or less drawing, shorten the frame")
+        rate = self.rate
+        hz = rate / plan.samples
+        t_draw = plan.moving_samples / rate
+        t_jump = plan.jump_samples / rate
+        t_rest = plan.samples / rate - t_draw - t_jump
+        fixes = [f"a sample rate of {2 * rate} Hz gives about "
+                 f"{1 / (t_draw + t_rest + t_jump / 2):.0f} Hz (shaped jumps take half the time)"]
+        if self.speed_cap is None:
+            fixes.append(f"max_writing_speed_mm_per_s = {2 * b.max_writing_speed_mm_per_s:g} "
+                         f"gives about {1 / (t_draw / 2 + t_rest + t_jump):.0f} Hz (a dimmer "
+                         f"line)")
+        lit = int(plan.lit.sum())
+        dwell = lit - plan.moving_samples
+        if dwell > 0.2 * plan.samples:
+            fixes.append(f"dwells take {100 * dwell / plan.samples:.0f} % of the frame: fewer "
+                         f"dots (dot marks for crosses in a pattern) or shorter end, corner and "
+                         f"dot dwells")
+        fixes.append("or draw less")
         limit = (f"the fastest writing speed ({b.max_writing_speed_mm_per_s / 1000:g} m/s)"
                  if self.speed_cap is None else "the fastest the deflection's lag allows")
         return (f"refresh {hz:.1f} Hz is below the {b.refresh_target_hz:g} Hz target even at "
                 f"{limit}: " + "; ".join(fixes))
-
-    def _jump_model_for(self, rate, timing):
-        if isinstance(self.jumps, ShapedJumps):
-            return ShapedJumps(timing.jump_step_mm, timing.settle)
-        if isinstance(self.jumps, LagJumps):
-            return LagJumps(self.response, self.model, JUMP_DRIVE_LIMIT, rate,
-                            self.profile.beam.spot_mm, timing.settle)
-        return timing.jumps
 
     # -- the interface: true peak, balancing, Z timing ---------------------------------------
     @property
