@@ -255,13 +255,22 @@ class Frame:
         return rep
 
 
+def _count(n: int, word: str) -> str:
+    return f"{n} {word}{'' if n == 1 else 's'}"
+
+
 def report_line(rep: dict) -> str:
     """The one-line summary of a frame report."""
+    if rep["drawn_length_mm"] == 0:
+        drawing = f"{_count(rep['strokes'], 'dot')}, nothing drawn between them"
+    else:
+        drawing = (f"{_count(rep['strokes'], 'stroke')}, drawn {rep['drawn_length_mm']:.1f} mm "
+                   f"at {rep['writing_speed_mm_per_s'] / 1000:.2f} m/s "
+                   f"({rep['point_spacing_mm']:.3f} mm/sample)")
     return (f"{rep['samples_per_frame']} samples/frame at {rep['sample_rate']} Hz = "
-            f"{rep['refresh_hz']:.1f} Hz refresh; {rep['strokes']} strokes, drawn "
-            f"{rep['drawn_length_mm']:.1f} mm at {rep['writing_speed_mm_per_s'] / 1000:.2f} m/s "
-            f"({rep['point_spacing_mm']:.3f} mm/sample); {rep['blanked_moves']} blanked moves "
-            f"over {rep['blanked_length_mm']:.1f} mm; peak drive {rep['peak_drive']:.3f}"
+            f"{rep['refresh_hz']:.1f} Hz refresh; {drawing}; "
+            f"{_count(rep['blanked_moves'], 'blanked move')} over "
+            f"{rep['blanked_length_mm']:.1f} mm; peak drive {rep['peak_drive']:.3f}"
             + (f"; frame {rep['frame_time_ratio']:.2f} x its lower bound, lit "
                f"{100 * rep['lit_duty_cycle']:.0f} %" if rep.get("frame_time_ratio") else ""))
 

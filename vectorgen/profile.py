@@ -361,9 +361,19 @@ PROFILE_HEADER = """\
 
 
 def profile_text(prof: Profile) -> str:
+    """The profile as TOML, arrays written inline (a 2 x 2 matrix as rows)."""
     import tomli_w
 
-    return PROFILE_HEADER + "\n" + tomli_w.dumps(profile_to_dict(prof))
+    def inline(v):
+        if isinstance(v, list):
+            return "[" + ", ".join(inline(e) for e in v) + "]"
+        return tomli_w.dumps({"v": v})[4:].strip()
+
+    data = profile_to_dict(prof)
+    lines = [PROFILE_HEADER, f"name = {inline(data.pop('name'))}"]
+    for table, values in data.items():
+        lines += ["", f"[{table}]"] + [f"{k} = {inline(v)}" for k, v in values.items()]
+    return "\n".join(lines) + "\n"
 
 
 def save_profile(prof: Profile, path: str | os.PathLike) -> str | None:

@@ -39,7 +39,10 @@ def add_source_arguments(parser) -> None:
     o.add_argument("--align", default="center", choices=("left", "center", "right"),
                    help="alignment of --text lines")
     o.add_argument("--time", default=None, metavar="HH:MM[:SS]",
-                   help="time shown by --shape clock (default 10:10)")
+                   help="time shown by --shape clock (default 10:10); a scene's time to start "
+                   "at (seconds or HH:MM[:SS], in place of START_TIME); A..B a range: render "
+                   "lasts B-A, preview exposes every update in it; --shape clock over a "
+                   "duration ticks")
     o.add_argument("--grid-step", type=float, default=10.0, metavar="MM",
                    help="spacing of --shape grid lines (default 10 mm)")
     o.add_argument("--radius", type=float, default=None, metavar="MM",
@@ -73,8 +76,15 @@ def drawing_options(args, profile) -> DrawingOptions:
     tol = args.tolerance if args.tolerance is not None else profile.beam.chord_tolerance_mm
     if not (tol > 0 and tol < 1e6):
         raise InputError(f"--tolerance must be > 0 mm (got {tol})")
-    time_s, with_seconds = (None, False) if args.time is None else \
-        parse_time_of_day(args.time, "--time")
+    time_s, with_seconds = None, False
+    if args.time is not None:
+        first = str(args.time).split("..")[0].strip()      # a range starts at its first time
+        try:
+            time_s, with_seconds = float(first), True
+        except ValueError:
+            time_s, with_seconds = parse_time_of_day(first, "--time")
+        if not (0 <= time_s < 24 * 3600):
+            raise InputError(f"--time must be a time of day (got {args.time!r})")
     return DrawingOptions(fit=args.fit, tolerance_mm=tol, text_height_mm=args.text_height,
                           align=args.align, time_s=time_s, seconds_hand=with_seconds,
                           grid_step_mm=args.grid_step, radius_mm=args.radius)
