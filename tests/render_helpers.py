@@ -86,3 +86,31 @@ def moving_steps(points: np.ndarray) -> np.ndarray:
 
 def files_in(folder) -> set[str]:
     return {p.name for p in Path(folder).iterdir()}
+
+
+def resvg_alpha(svg: str, width_px: int) -> np.ndarray:
+    """resvg's picture of an SVG (resvg_py, an independent renderer) as coverage 0..1: the
+    alpha channel of its PNG, `width_px` pixels across the page. (dpi=96 has to be given: with
+    the binding's default of 0, a page sized in mm comes out with no size and is refused.)"""
+    import io
+
+    import resvg_py
+    from PIL import Image
+
+    png = resvg_py.svg_to_bytes(svg_string=svg, width=int(width_px), dpi=96.0)
+    return np.asarray(Image.open(io.BytesIO(png)).convert("RGBA"))[:, :, 3] / 255.0
+
+
+def lit_path_points(plan, step_mm: float = 0.05) -> np.ndarray:
+    """The spot's lit path: every lit run of a beam plan, the straight moves between its
+    samples filled in every `step_mm` (a lone lit sample stays one point)."""
+    out = []
+    for run in lit_runs(plan):
+        p = plan.points[run]
+        if len(p) == 1:
+            out.append(p)
+            continue
+        t = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(p, axis=0).T))])
+        u = np.linspace(0.0, t[-1], max(2, int(np.ceil(t[-1] / step_mm)) + 1))
+        out.append(np.column_stack([np.interp(u, t, p[:, 0]), np.interp(u, t, p[:, 1])]))
+    return np.concatenate(out) if out else np.zeros((0, 2))

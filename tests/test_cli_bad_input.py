@@ -24,7 +24,7 @@ SVG_FILES = {
                 '<line x1="0" y1="0" x2="9" y2="9"/></svg>'),
     "empty.svg": svg_text(""),
     "only-groups.svg": svg_text("<g><g><title>nothing here</title></g></g>"),
-    "only-text.svg": svg_text('<text x="1" y="1">words</text>'),
+    "only-text.svg": svg_text('<text x="1" y="1">   </text><text x="5" y="5"/>'),
     "nan-path.svg": svg_text('<path d="M 0 0 L nan 5"/>'),
     "nan-line.svg": svg_text('<line x1="0" y1="0" x2="NaN" y2="5"/>'),
     "nan-circle.svg": svg_text('<circle cx="5" cy="5" r="nan"/>'),
@@ -84,7 +84,7 @@ def test_the_hostile_entities_are_named(workdir):
 
 def test_messages_say_what_is_wrong(workdir):
     expect = {"missing.svg": "not found", "empty.svg": "nothing drawable",
-              "only-text.svg": "<text>", "huge.svg": "enormous", "nan-path.svg": "'n'",
+              "only-text.svg": "nothing drawable", "huge.svg": "enormous", "nan-path.svg": "'n'",
               "unknown-command.svg": "'X'", "truncated.svg": "XML",
               "off-screen.svg": "outside", "zero-viewbox.svg": "viewBox"}
     for name, words in expect.items():

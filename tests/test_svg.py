@@ -251,18 +251,24 @@ def test_y_axis_is_flipped(tmp_path):
 
 # --- <text>, namespaces -------------------------------------------------------------------------
 
-def test_text_elements_are_reported(tmp_path):
+def test_text_elements_are_drawn_and_reported(tmp_path):
+    """<text> is drawn in the single-stroke font (test_svg_text.py has the placement rules);
+    what is not drawn about it, a named font-family, is reported."""
     path = write_svg(tmp_path, '<line x1="0" y1="0" x2="10" y2="0"/><text x="5" y="5">hi</text>'
-                               '<text x="5" y="15">there</text>')
-    with pytest.warns(VectorgenWarning, match="2 <text>"):
+                               '<text x="5" y="15" font-family="Courier">there</text>')
+    with pytest.warns(VectorgenWarning, match="font-family Courier"):
         s = strokes_of(path)
-    assert s.count == 1
+    assert {"<text> #2", "<text> #3"} <= set(s.labels) and s.count > 3
     out = run_cli("render", path, "-o", tmp_path / "out.wav")
     assert out.returncode == 0
-    assert "warning" in out.stderr and "<text>" in out.stderr
+    assert "warning" in out.stderr and "font-family" in out.stderr
 
 
-def test_text_only_svg_is_an_error_that_says_so(tmp_path):
+def test_text_only_svg_without_a_font_is_an_error_that_says_so(tmp_path, monkeypatch):
+    from vectorgen import sources
+    from vectorgen.registry import Registry
+
+    monkeypatch.setattr(sources, "STROKE_FONTS", Registry("stroke font"))
     path = write_svg(tmp_path, '<text x="5" y="5">only words</text>')
     with pytest.raises(VectorgenError, match="text"):
         strokes_of(path)

@@ -35,7 +35,7 @@ class DrawingOptions:
     Attributes
     ----------
     fit : str
-        SVG placement: "page", "content" or "off".
+        SVG placement: "page", "content", "true" (physical size) or "off".
     tolerance_mm : float
         Chord tolerance for flattening curves.
     text_height_mm : float or None

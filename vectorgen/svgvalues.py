@@ -35,7 +35,7 @@ FONT_SIZE_KEYWORDS = {"xx-small": 16.0 * 3 / 5, "x-small": 16.0 * 3 / 4, "small"
 # A number as SVG 1.1 (4.2) and CSS write it: no NaN, no infinity, no hexadecimal.
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _NUMBER = re.compile(rf"^\s*({_NUM})\s*$")
-_LENGTH = re.compile(rf"^\s*({_NUM})\s*([a-zA-Z]+|%)?\s*$")
+_LENGTH = re.compile(rf"^\s*({_NUM})([a-zA-Z]+|%)?\s*$")
 _LIST_SEP = re.compile(r"\s*,\s*|\s+")
 _TRANSFORM_ITEM = re.compile(r"\s*(matrix|translate|scale|rotate|skewX|skewY)\s*\(([^()]*)\)"
                              r"\s*,?")
@@ -197,8 +197,9 @@ def invert(m):
 
     Examples
     --------
-    >>> invert((2.0, 0.0, 0.0, 4.0, 2.0, 4.0))
-    (0.5, -0.0, -0.0, 0.25, -1.0, -1.0)
+    >>> m = (2.0, 0.0, 0.0, 4.0, 2.0, 4.0)
+    >>> compose(m, invert(m)) == IDENTITY
+    True
     """
     a, b, c, d, e, f = m
     det = a * d - b * c
@@ -209,7 +210,13 @@ def invert(m):
 
 
 def is_singular(m) -> bool:
-    """Whether the transform squashes the plane onto a line or a point (determinant 0)."""
+    """Whether the transform squashes the plane onto a line or a point (determinant 0).
+
+    Examples
+    --------
+    >>> is_singular((1.0, 0.0, 0.0, 0.0, 5.0, 5.0)), is_singular(IDENTITY)
+    (True, False)
+    """
     return m[0] * m[3] - m[1] * m[2] == 0.0
 
 

@@ -29,9 +29,11 @@ def add_source_arguments(parser) -> None:
     g.add_argument("--shape", help="a built-in drawing by name: grid, crosshair, circle, clock "
                    "(an unknown name lists every one)")
     o = parser.add_argument_group("drawing options")
-    o.add_argument("--fit", default="page", choices=("page", "content", "off"),
+    o.add_argument("--fit", default="page", choices=("page", "content", "off", "true"),
                    help="SVG placement: fit the page (default) or the drawing's bounds into the "
-                        "usable area, or 'off': one SVG unit = 1 mm")
+                        "usable area; 'true': the document's true size from its width and "
+                        "height units (1 mm on the page = 1 mm on the tube), centred; 'off': "
+                        "one SVG user unit = 1 mm")
     o.add_argument("--tolerance", type=float, default=None, metavar="MM",
                    help="chord tolerance for flattening curves (default: the profile's)")
     o.add_argument("--text-height", type=float, default=None, metavar="MM",
