@@ -32,7 +32,15 @@ Report definitions (all from the fitted model unless said otherwise):
       (affine-only) model p = A' u + c' by linear least squares; each row's deviation from it is
       expressed in drive units, e = A'^-1 (p_measured - A' u - c'), and the linearity error of an
       axis is max |e| on that axis as a percentage of full scale (full-scale drive = 100 %, i.e.
-      of the deflection from the centre to full scale). Needs >= 4 rows (else null).
+      of the deflection from the centre to full scale). Needs >= 4 rows (else null). It
+      describes the tube before correction; the fitted profile corrects it.
+Each figure says how many targets it rests on. The residual of n targets and k unknowns has
+2n - k coordinates to spare: with few to spare the model bends to the points and the residual
+understates the error elsewhere (warned below MIN_SPREAD_ROWS targets or fewer spare coordinates
+than unknowns). Linearity needs targets between the centre and the edge on both axes: below
+MIN_SPREAD_ROWS targets (a 3 x 3 grid) or 3 distinct drive values per axis it cannot show the
+curvature and is not comparable with a grid's (warned). The remaining error of the calibrated
+tube is measured by the check pattern (calibration.check).
 """
 
 from __future__ import annotations
@@ -45,6 +53,11 @@ import numpy as np
 from vectorgen.deflection import DeflectionModel
 from vectorgen.errors import VectorgenError
 
+__all__ = ["DEFINITIONS", "FitResult", "check_model", "choose_stage", "circle_aspect",
+           "figure_warnings", "fit_sheet", "fitted_profile", "geometry", "linearity",
+           "make_report", "report_lines", "rewired", "spread_enough", "warnings_for",
+           "write_arrows_png", "write_residual_png"]
+
 TERMS = ("auto", "gains", "affine", "full")
 STAGES = ("gains", "affine", "full")
 MIN_ROWS = {"gains": 3, "affine": 4, "full": 8, "gains-only": 3}
@@ -56,6 +69,26 @@ DESCRIBE = {
     "gains-only": "gains and offset (rotation, skew and pincushion kept from the base)",
 }
 K_LIMIT = 1.0          # the profile schema's bound on |k|
+MIN_SPREAD_ROWS = 9    # a 3 x 3 grid: fewer cannot show curvature or pin a residual
+
+DEFINITIONS = {
+    "gain_x_mm_per_fs": "mm on the face per full-scale drive x (|A[:, 0]|)",
+    "gain_y_mm_per_fs": "mm on the face per full-scale drive y (|A[:, 1]|)",
+    "rotation_deg": "angle of the drive-x axis on the face from +x, counter-clockwise",
+    "skew_deg": "how far the drive axes are from perpendicular",
+    "offset_x_mm": "where zero drive lands, x",
+    "offset_y_mm": "where zero drive lands, y",
+    "rms_residual_mm": "RMS of |measured - fitted position| over the targets used: how well the "
+                       "fitted model matches them",
+    "max_residual_mm": "the largest |measured - fitted position| (at worst_point)",
+    "linearity_x_pct": "largest deviation of the uncorrected tube from its best straight-line "
+                       "fit, x, as % of full scale (the profile corrects it)",
+    "linearity_y_pct": "largest deviation of the uncorrected tube from its best straight-line "
+                       "fit, y, as % of full scale (the profile corrects it)",
+    "spare_coordinates": "measured coordinates beyond the unknowns fitted (2 per target less "
+                         "the unknowns): the room the residual has to show errors",
+    "max_drive_usable_area": "the largest drive the usable area needs with the fitted model",
+}
 
 
 @dataclass
@@ -173,6 +206,23 @@ def linearity(u: np.ndarray, p: np.ndarray) -> tuple[float | None, float | None]
     return float(100 * np.abs(e[:, 0]).max()), float(100 * np.abs(e[:, 1]).max())
 
 
+def spread_enough(u: np.ndarray) -> bool:
+    """Whether targets can show a tube's curvature: at least MIN_SPREAD_ROWS of them with 3 or
+    more distinct drive values on each axis (a 3 x 3 grid does; the box's corners do not).
+
+    Examples
+    --------
+    >>> g = np.linspace(-0.8, 0.8, 3)
+    >>> spread_enough(np.column_stack([a.ravel() for a in np.meshgrid(g, g)]))
+    True
+    >>> spread_enough(np.array([[0, 0], [-1, 1], [1, 1], [-1, -1], [1, -1]]) * 0.8)
+    False
+    """
+    u = np.asarray(u, dtype=float)
+    distinct = [len(np.unique(np.round(u[:, j], 6))) for j in (0, 1)]
+    return len(u) >= MIN_SPREAD_ROWS and min(distinct) >= 3
+
+
 def circle_aspect(names: list, p: np.ndarray) -> float | None:
     """Horizontal over vertical diameter, from the circle pattern's E, W, N and S points."""
     at = {n: i for i, n in enumerate(names)}
@@ -282,11 +332,17 @@ def make_report(result: FitResult, profile, sheet=None) -> dict:
     dist = np.hypot(*result.residuals.T)
     worst = int(np.argmax(dist))
     lx, ly = linearity(result.drive, result.measured)
+    n = len(result.names)
+    unknowns = N_UNKNOWNS[result.terms]
     rep = {
         "terms_fitted": result.terms,
         "terms_asked": result.asked,
-        "rows_used": len(result.names),
+        "rows_used": n,
         "rows_skipped": list(result.skipped),
+        "unknowns": unknowns,
+        "spare_coordinates": 2 * n - unknowns,
+        "linearity_rows": n if lx is not None else 0,
+        "linearity_spread": bool(lx is not None and spread_enough(result.drive)),
         **geo,
         "offset_x_mm": float(m.offset[0]),
         "offset_y_mm": float(m.offset[1]),
@@ -305,6 +361,12 @@ def make_report(result: FitResult, profile, sheet=None) -> dict:
         rep["gain_x_mm_per_volt"] = geo["gain_x_mm_per_fs"] / vfs
         rep["gain_y_mm_per_volt"] = geo["gain_y_mm_per_fs"] / vfs
     rep.update(check_model(m, profile.screen))
+    from .wiring import diagnose
+
+    wiring = diagnose(m.matrix, profile.output.order, profile.output.invert)
+    rep.update(wiring.report())
+    rep["wiring_lines"] = list(wiring.lines)
+    rep["definitions"] = dict(DEFINITIONS)
     aspect = circle_aspect(result.names, result.measured)
     if aspect is not None:
         rep["circle_aspect"] = aspect
@@ -337,45 +399,98 @@ def fitted_profile(base_profile, result: FitResult, kind: str | None = None,
     return prof
 
 
+def _targets(n: int) -> str:
+    return f"{n} target" + ("" if n == 1 else "s")
+
+
 def report_lines(rep: dict) -> list[str]:
-    """The report in a few lines for the terminal."""
-    lines = [f"fitted {DESCRIBE[rep['terms_fitted']]} to {rep['rows_used']} target(s)"
-             + (f", {len(rep['rows_skipped'])} left out" if rep["rows_skipped"] else "")]
+    """The report for the terminal, each figure defined where it is printed and with the number
+    of targets it rests on."""
+    n = rep["rows_used"]
+    lines = [f"fitted {DESCRIBE[rep['terms_fitted']]}: {rep['unknowns']} unknowns from "
+             f"{_targets(n)} ({2 * n} coordinates, {rep['spare_coordinates']} to spare)"
+             + (f"; {len(rep['rows_skipped'])} left out" if rep["rows_skipped"] else "")]
     g = (f"gain x {rep['gain_x_mm_per_fs']:.3f} mm/FS"
          + (f" ({rep['gain_x_mm_per_volt']:.4f} mm/V)" if "gain_x_mm_per_volt" in rep else "")
          + f", y {rep['gain_y_mm_per_fs']:.3f} mm/FS"
          + (f" ({rep['gain_y_mm_per_volt']:.4f} mm/V)" if "gain_y_mm_per_volt" in rep else "")
-         + f"; rotation {rep['rotation_deg']:+.3f} deg, skew {rep['skew_deg']:+.3f} deg"
-         + (" (mirrored)" if rep["mirrored"] else ""))
+         + " (mm on the face per full-scale drive); rotation of the drive-x axis from +x "
+         + f"{rep['rotation_deg']:+.3f} deg, skew (drive axes off perpendicular) "
+         + f"{rep['skew_deg']:+.3f} deg" + (" (mirrored)" if rep["mirrored"] else ""))
     lines.append(g)
     k = (f"pincushion k_radial {rep['k_radial']:+.4f}, k_x {rep['k_x']:+.4f}, "
          f"k_y {rep['k_y']:+.4f}")
+    said = []
+    if rep["terms_fitted"] == "gains-only":
+        said.append("kept")
+    if rep.get("area_changed"):
+        said.append("normalised to the new usable area's half-diagonal")
+    if said:
+        k += f" ({'; '.join(said)})"
     if rep["terms_fitted"] in ("gains", "affine"):
         k = "pincushion not fitted (0)"
-    elif rep["terms_fitted"] == "gains-only":
-        k += " (kept)"
-    lines.append(f"offset {rep['offset_x_mm']:+.3f}, {rep['offset_y_mm']:+.3f} mm; {k}")
-    lin = ("linearity n/a (needs 4 targets)" if rep["linearity_x_pct"] is None else
-           f"linearity x {rep['linearity_x_pct']:.2f} %, y {rep['linearity_y_pct']:.2f} % of "
-           f"full scale")
-    lines.append(f"residual RMS {rep['rms_residual_mm']:.3f} mm, worst "
-                 f"{rep['max_residual_mm']:.3f} mm at {rep['worst_point']}; {lin}")
+    lines.append(f"offset (where zero drive lands) {rep['offset_x_mm']:+.3f}, "
+                 f"{rep['offset_y_mm']:+.3f} mm; {k}")
+    lines.append(f"residual of the fitted model (|measured - fitted position| over the "
+                 f"{_targets(n)}): RMS {rep['rms_residual_mm']:.3f} mm, worst "
+                 f"{rep['max_residual_mm']:.3f} mm at {rep['worst_point']}")
+    if rep["linearity_x_pct"] is None:
+        lines.append("linearity of the uncorrected tube: not measured (it needs 4 targets or "
+                     "more, spread over both axes)")
+    else:
+        few = ("" if rep["linearity_spread"] else
+               f" (only {_targets(rep['linearity_rows'])}: not comparable with a grid's)")
+        lines.append(f"linearity of the uncorrected tube (largest deviation of the measured "
+                     f"positions from its best straight-line fit, % of full scale, "
+                     f"{_targets(rep['linearity_rows'])}): x {rep['linearity_x_pct']:.2f} %, y "
+                     f"{rep['linearity_y_pct']:.2f} %{few}")
     if "circle_aspect" in rep:
         lines.append(f"circle aspect (horizontal / vertical diameter) "
                      f"{rep['circle_aspect']:.4f}")
     return lines
 
 
-def warnings_for(rep: dict) -> list[str]:
+def figure_warnings(rep: dict) -> list[str]:
+    """Warnings for figures that rest on too few targets (see the module docstring).
+
+    Examples
+    --------
+    >>> rep = {"rows_used": 5, "unknowns": 4, "spare_coordinates": 6, "linearity_x_pct": 0.1,
+    ...        "linearity_rows": 5, "linearity_spread": False}
+    >>> [w.split(",")[0].split(" (")[0] for w in figure_warnings(rep)]
+    ['the residual rests on 5 targets', 'the linearity rests on 5 targets']
+    """
     out = []
-    if rep["mirrored"]:
-        out.append("the measured picture is mirrored (det A < 0): check the sign convention "
-                   "(+x right, +y up) or set [output] invert")
-    if rep["max_drive_usable_area"] > 1.0:
-        out.append(f"with this model the usable area needs drive up to "
-                   f"{rep['max_drive_usable_area']:.3f}, beyond full scale: drawings near its "
-                   f"edge will be refused (shrink [screen] or raise the amplifier gain)")
+    n, k = rep["rows_used"], rep["unknowns"]
+    spare = rep["spare_coordinates"]
+    if n < MIN_SPREAD_ROWS or spare < k:
+        out.append(f"the residual rests on {_targets(n)} ({spare} coordinates to spare for "
+                   f"{k} unknowns): the model bends to these points, so it shows how well it "
+                   f"fits them, not the error elsewhere on the face; measure that with `vectorgen "
+                   f"pattern check` and `vectorgen check`")
+    if rep["linearity_x_pct"] is not None and not rep["linearity_spread"]:
+        out.append(f"the linearity rests on {_targets(rep['linearity_rows'])}, too few to show "
+                   f"the tube's curvature (it needs a grid of at least 3 x 3 targets): do not "
+                   f"compare it with a grid's figure")
     return out
+
+
+def warnings_for(rep: dict) -> list[str]:
+    """Every warning about a fit: figures on too few targets, and the wiring diagnosis."""
+    return figure_warnings(rep) + list(rep.get("wiring_lines", []))
+
+
+def rewired(result: FitResult, wiring) -> FitResult:
+    """The fit written for the channel map that undoes a wiring mistake (`wiring.order`,
+    `.invert`): the same tube and spots, drive in the new map's signals, u' = P^T u (P is a
+    signed permutation) and A' = A P."""
+    m = result.model
+    P = wiring.permutation
+    model = DeflectionModel(wiring.matrix.copy(), m.offset.copy(), m.k_radial, m.k_x, m.k_y,
+                            m.norm_radius)
+    return FitResult(model, result.terms, result.asked, list(result.names), result.drive @ P,
+                     result.measured, result.predicted, list(result.skipped),
+                     notes=list(result.notes))
 
 
 # --- residual picture ---------------------------------------------------------------------------
@@ -391,33 +506,52 @@ def _nice(x: float) -> float:
     return float(10 ** e)
 
 
-def write_residual_png(path: str, result: FitResult, screen, title: str = "") -> float:
+def write_residual_png(path: str, result: FitResult, screen, title: str = ""
+                       ) -> tuple[float, str | None]:
     """Arrows from each target's fitted position to its measured position, magnified so the
-    longest is about a tenth of the width. Returns the magnification."""
+    longest is about a tenth of the width. An existing picture at `path` is kept as a numbered
+    backup. Returns (the magnification, the backup's path or None)."""
+    return write_arrows_png(path, result.predicted, result.residuals, result.names, screen,
+                            "fitted position", title or _fit_title(result))
+
+
+def _fit_title(result: FitResult) -> str:
+    rep = result.report
+    return (f"fit residuals ({result.terms}): RMS {rep.get('rms_residual_mm', 0):.3f} mm, "
+            f"worst {rep.get('max_residual_mm', 0):.3f} mm")
+
+
+def write_arrows_png(path: str, origins: np.ndarray, arrows: np.ndarray, names: list, screen,
+                     origin_label: str, title: str) -> tuple[float, str | None]:
+    """Arrows `arrows` (mm) from `origins` (mm) over the usable area, magnified so the longest
+    is about a tenth of the width; the three longest are named. An existing picture at `path` is
+    kept as a numbered backup. Returns (the magnification, the backup's path or None)."""
+    import io
+
     import matplotlib
 
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
 
-    from vectorgen.files import atomic_write
+    from vectorgen.files import write_with_backup
 
     w, h = screen.half_extent
-    r = result.residuals
+    r = np.asarray(arrows, dtype=float)
     longest = float(np.hypot(*r.T).max()) if len(r) else 0.0
     mag = _nice(0.2 * w / longest) if longest > 0 else 1.0
     fig = Figure(figsize=(7, 7 * h / w + 0.6), dpi=110)
     ax = fig.subplots()
     out = screen.outline(721)
     ax.plot(out[:, 0], out[:, 1], color="0.6", lw=0.8)
-    pf = result.predicted
-    ax.plot(pf[:, 0], pf[:, 1], "o", ms=3, color="tab:blue", label="fitted position")
+    pf = np.asarray(origins, dtype=float)
+    ax.plot(pf[:, 0], pf[:, 1], "o", ms=3, color="tab:blue", label=origin_label)
     ax.quiver(pf[:, 0], pf[:, 1], r[:, 0] * mag, r[:, 1] * mag, angles="xy",
               scale_units="xy", scale=1.0, width=0.004, color="tab:red",
-              label=f"to measured, x{mag:g}")
+              label=f"to measured, magnified x{mag:g}")
     d = np.hypot(*r.T)
     for i in np.argsort(-d)[:3]:
         if d[i] > 0:
-            ax.annotate(f"{result.names[i]} {d[i]:.2f} mm", pf[i], fontsize=7,
+            ax.annotate(f"{names[i]} {d[i]:.2f} mm", pf[i], fontsize=7,
                         xytext=(4, 4), textcoords="offset points")
     ax.set_aspect("equal")
     ax.set_xlim(-1.15 * w, 1.15 * w)
@@ -425,11 +559,9 @@ def write_residual_png(path: str, result: FitResult, screen, title: str = "") ->
     ax.set_xlabel("x (mm)")
     ax.set_ylabel("y (mm)")
     ax.grid(alpha=0.25)
-    rep = result.report
-    ax.set_title(title or f"fit residuals x{mag:g} ({result.terms}): RMS "
-                 f"{rep.get('rms_residual_mm', 0):.3f} mm, worst "
-                 f"{rep.get('max_residual_mm', 0):.3f} mm", fontsize=9)
+    ax.set_title(f"{title} (arrows x{mag:g})", fontsize=9)
     ax.legend(loc="lower right", fontsize=7)
     fig.tight_layout()
-    atomic_write(path, lambda fh: fig.savefig(fh, format="png"))
-    return mag
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    return mag, write_with_backup(path, buf.getvalue(), (".png",))

@@ -15,6 +15,10 @@ Patterns
           the centre: an aspect check. The circle is defined in mm, not drive: a correct profile
           makes it land as a circle, and its horizontal and vertical diameters are equal. Its
           targets' drive values are the current profile's inverse at those points.
+  check   rows x cols targets on a regular lattice in mm over `extent` of the usable area, drawn
+          through a calibrated profile: where each should land is known in mm, so measuring
+          where they do land gives the remaining error of the calibrated tube (its sheet lists
+          target_x_mm, target_y_mm; see calibration.check).
 
 Patterns without targets (no measurement sheet), read off a scope or the tube instead
   step     a slow square wave of jumps on one axis, straight to the channels with the beam
@@ -39,7 +43,10 @@ from vectorgen.deflection import DeflectionModel
 from vectorgen.errors import VectorgenError
 from vectorgen.strokes import Strokes, strokes_from_polylines
 
-PATTERNS = ("grid", "box", "circle")
+__all__ = ["MARKS", "PATTERNS", "SIGNAL_PATTERNS", "Pattern", "StepSignal", "lattice",
+           "make_pattern", "step_signal", "ztiming_strokes"]
+
+PATTERNS = ("grid", "box", "circle", "check")
 SIGNAL_PATTERNS = ("step", "ztiming")      # no targets, no sheet
 MARKS = ("cross", "dot")
 MAX_SIDE = 40               # rows or columns of a grid
@@ -47,6 +54,7 @@ ARM_FRACTION = 0.18         # cross half-arm as a fraction of the target spacing
 ARM_MAX_MM = 3.0
 ARM_POINTS = 9              # points along each arm (follows the distortion in mm)
 CIRCLE_NAMES = ("E", "NE", "N", "NW", "W", "SW", "S", "SE")
+CHECK_STEP_MM = 0.5         # check targets are spaced by a multiple of this
 
 
 @dataclass
@@ -187,6 +195,48 @@ def _circle_pattern(profile, extent: float, mark: str, tolerance_mm: float) -> P
                     f"vertical (S-N) diameters; on a correct profile both are {diameter:.2f} mm"])
 
 
+def _check_pattern(profile, rows: int, cols: int, extent: float, mark: str) -> Pattern:
+    """Targets on a lattice in mm over `extent` of the usable area, crosses straight in mm."""
+    model = DeflectionModel.from_profile(profile)
+    screen = profile.screen
+    w, h = screen.half_extent
+    names, unit = lattice(rows, cols)
+    spacing = np.array([2.0 * w / max(cols - 1, 1), 2.0 * h / max(rows - 1, 1)])
+    arm = min(ARM_MAX_MM, ARM_FRACTION * extent * float(spacing.min())) if mark == "cross" else 0.0
+
+    def ends(t):
+        pts = t * unit * np.array([w, h])
+        return pts, np.concatenate([pts + [arm, 0.0], pts - [arm, 0.0], pts + [0.0, arm],
+                                    pts - [0.0, arm]])
+
+    t = _largest_scale(lambda t: _inside(ends(t)[1], screen, extent), 1.0)
+    # spacing rounded down to CHECK_STEP_MM, so the targets sit at round numbers for a ruler
+    step = np.floor(t * spacing / CHECK_STEP_MM + 1e-9) * CHECK_STEP_MM
+    if np.any(step <= 0):
+        raise VectorgenError("the check targets do not fit the usable area: use fewer --rows "
+                             "or --cols, or a larger --extent")
+    t_xy = step / spacing
+    pts = unit * np.array([w, h]) * t_xy
+    every = np.concatenate([pts + [arm, 0.0], pts - [arm, 0.0], pts + [0.0, arm],
+                            pts - [0.0, arm]])
+    drive = model.mm_to_drive(every)
+    if np.abs(drive).max() > 1.0:
+        raise VectorgenError(f"the check targets need drive up to {np.abs(drive).max():.3f} "
+                             f"with this profile, beyond full scale: use a smaller --extent")
+    polys, labels = [], []
+    for name, p in zip(names, pts):
+        if mark == "cross":
+            polys += [np.array([p - [arm, 0.0], p + [arm, 0.0]]),
+                      np.array([p - [0.0, arm], p + [0.0, arm]])]
+            labels += [f"target {name}"] * 2
+        polys.append(p[None, :])
+        labels.append(f"target {name}")
+    return Pattern("check", names, model.mm_to_drive(pts), pts,
+                   strokes_from_polylines(polys, labels=labels),
+                   [f"targets up to {np.abs(pts[:, 0]).max():.2f} mm from the centre in x and "
+                    f"{np.abs(pts[:, 1]).max():.2f} mm in y, where the profile should put them"])
+
+
 def make_pattern(kind: str, profile, rows: int = 7, cols: int = 9, extent: float = 0.9,
                  mark: str = "cross") -> Pattern:
     """The targets and strokes of pattern `kind` for `profile` (the profile in use now)."""
@@ -197,13 +247,15 @@ def make_pattern(kind: str, profile, rows: int = 7, cols: int = 9, extent: float
     if not (np.isfinite(extent) and 0.1 <= extent <= 1.0):
         raise VectorgenError(f"--extent must be between 0.1 and 1 (a fraction of the usable "
                              f"area; got {extent:g})")
-    if kind == "grid":
+    if kind in ("grid", "check"):
         for what, n in (("--rows", rows), ("--cols", cols)):
             if not (isinstance(n, int) and 2 <= n <= MAX_SIDE):
                 raise VectorgenError(f"{what} must be a whole number from 2 to {MAX_SIDE} "
                                      f"(got {n})")
     if kind == "circle":
         return _circle_pattern(profile, extent, mark, profile.beam.chord_tolerance_mm)
+    if kind == "check":
+        return _check_pattern(profile, rows, cols, extent, mark)
     return _lattice_pattern(kind, profile, rows, cols, extent, mark)
 
 

@@ -15,8 +15,9 @@
    stray spot merged into a mark), since their centroid would not be the target's.
    Pixel positions are (x = column, y = row from the top), the top-left pixel's centre at (0, 0).
 
-2. Matching dots to targets. Targets are known by their drive only, so matching works in drive
-   space and needs no millimetres: the four extreme targets along the diagonals are paired with
+2. Matching dots to targets. Targets are known by their place in the pattern only (the drive of
+   a fit sheet, the intended mm of a check sheet), so matching works in that space and needs no
+   measured millimetres: the four extreme targets along the diagonals are paired with
    the four extreme dots (the photo taken upright, not mirrored), a homography from drive to the
    photo predicts every target, each target takes the one dot within 0.4 of its spacing, the
    prediction is refitted from all matches (a homography, or a polynomial of degree 2 or 3 in
@@ -382,15 +383,18 @@ class SpotsResult:
     notes: list = field(default_factory=list)
     ref_rms_mm: float | None = None
 
-    def write_overlay(self, path: str) -> None:
+    def write_overlay(self, path: str) -> str | None:
         """The photo with every dot found (blue), matched targets (green, named), missing
-        (red x) and ambiguous (orange) targets at their predicted places."""
+        (red x) and ambiguous (orange) targets at their predicted places. An existing file at
+        `path` is kept as a numbered backup; returns its path (None: nothing to keep)."""
         import matplotlib
 
         matplotlib.use("Agg")
         from matplotlib.figure import Figure
 
-        from vectorgen.files import atomic_write
+        import io
+
+        from vectorgen.files import write_with_backup
 
         h, w = self.gray.shape
         fig = Figure(figsize=(10, 10 * h / w), dpi=max(100, int(w / 10)))
@@ -414,7 +418,9 @@ class SpotsResult:
         ax.set_xlim(-0.5, w - 0.5)
         ax.set_ylim(h - 0.5, -0.5)
         ax.axis("off")
-        atomic_write(path, lambda fh: fig.savefig(fh, format="png"))
+        buf = io.BytesIO()
+        fig.savefig(buf, format="png")
+        return write_with_backup(path, buf.getvalue(), (".png",))
 
 
 def _names(names: list) -> str:
@@ -455,7 +461,7 @@ def spots_to_sheet(photo: str, sheet, refs=None, threshold: float = 0.35,
     else:
         H_ref = None
         frame = dots.xy * np.array([1.0, -1.0])                # upright photo: +y up
-    match, status, pred_frame, radius = match_targets(sheet.drive, frame)
+    match, status, pred_frame, radius = match_targets(sheet.coords, frame)
     suspect = dots.suspect
     if len(suspect):
         from scipy.spatial import cKDTree

@@ -116,11 +116,28 @@ def test_circle_checks_aspect_only_on_a_right_profile(tmp_path):
     assert res.report["circle_aspect"] == pytest.approx(aspects["uncalibrated"], rel=1e-5)
 
 
-def test_pattern_keeps_an_existing_sheet_as_a_backup(tmp_path):
+def test_pattern_keeps_an_existing_empty_sheet_as_a_backup(tmp_path):
     sheet = tmp_path / "s.csv"
-    sheet.write_text("my measurements\n")
+    assert main(["pattern", "grid", "--sheet", str(sheet), "-o", str(tmp_path / "g.wav"),
+                 "-q"]) == 0
+    empty = sheet.read_bytes()
     assert main(["pattern", "box", "-o", str(tmp_path / "b.wav"), "--sheet", str(sheet),
                  "-q"]) == 0
+    assert (tmp_path / "s.csv.bak1").read_bytes() == empty
+    assert read_sheet(sheet).count == 5
+
+
+def test_pattern_replaces_a_file_that_is_not_a_sheet_only_when_asked(tmp_path, capsys):
+    sheet = tmp_path / "s.csv"
+    sheet.write_text("my measurements\n")
+    before = snapshot(tmp_path)
+    assert main(["pattern", "box", "-o", str(tmp_path / "b.wav"), "--sheet", str(sheet),
+                 "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "--replace-sheet" in err and len(err.strip().splitlines()) == 1
+    assert snapshot(tmp_path) == before
+    assert main(["pattern", "box", "-o", str(tmp_path / "b.wav"), "--sheet", str(sheet),
+                 "--replace-sheet", "-q"]) == 0
     assert (tmp_path / "s.csv.bak1").read_text() == "my measurements\n"
     assert read_sheet(sheet).count == 5
 

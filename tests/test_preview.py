@@ -1,5 +1,7 @@
 """Phosphor preview: PNG files decoded with Pillow; light where the strokes are, dark along
-blanked jumps, the usable-area outline present, made from the actual output samples."""
+blanked jumps (with a Z channel; without one the beam never goes off, so every jump shows on the
+tube as a faint line, and so in the preview: common practice, no source), the usable-area
+outline present, made from the actual output samples."""
 
 from __future__ import annotations
 
@@ -39,7 +41,7 @@ def two_posts():
 
 
 @pytest.mark.parametrize("channels", [3, 2])
-def test_strokes_are_bright_and_blanked_jumps_dark(channels):
+def test_strokes_are_bright_and_blanked_jumps_dark_or_faint_without_z(channels):
     frame = render(two_posts(), channels=channels)
     # the jumps really cross the middle: blanked samples on both sides of x = 0
     blank = frame.plan.points[~frame.plan.lit]
@@ -53,9 +55,42 @@ def test_strokes_are_bright_and_blanked_jumps_dark(channels):
     xs = np.linspace(-30, 30, 61)
     for y in (30.0, -30.0):
         r, c = to_px(img, xs, np.full_like(xs, y))
-        # along the jump and a few pixels either side: black
-        for dr in (-2, 0, 2):
-            assert green[r + dr, c].max() <= 2, "light along a blanked jump"
+        if channels == 3:
+            # Z blanks the beam: along the jump and a few pixels either side, black
+            for dr in (-2, 0, 2):
+                assert green[r + dr, c].max() <= 2, "light along a blanked jump"
+        else:
+            # no Z: the retrace is a faint line all along the jump, far dimmer than a stroke,
+            # and dark a few pixels beside it
+            along = np.max([green[r + dr, c] for dr in (-1, 0, 1)], axis=0)
+            assert along.min() >= 15, "the retrace of a 2-channel tube is not shown"
+            assert along.max() < 100, "the retrace is drawn as bright as a stroke"
+            assert green[r + 6, c].max() <= 2 and green[r - 6, c].max() <= 2
+
+
+def test_without_z_dimmed_strokes_are_drawn_at_full_brightness_and_warned_once():
+    import warnings
+
+    from vectorgen.errors import VectorgenWarning
+
+    strokes = polylines([(-35, -20), (-5, -20)], [(5, -20), (35, -20)], intensity=[1.0, 0.3])
+    pictures = {}
+    for channels in (2, 3):
+        frame = render(strokes, channels=channels)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            img = phosphor_image(frame.signal, PROF, channels, frame.plan.lit,
+                                 intensity=frame.plan.intensity)
+        said = [w for w in caught if issubclass(w.category, VectorgenWarning)]
+        g = img[..., 1].astype(int)
+        pictures[channels] = (int(g[to_px(img, -20, -20)]), int(g[to_px(img, 20, -20)]), said)
+    full, dim, said = pictures[2]
+    assert abs(full - dim) <= 12, "without Z both strokes are one brightness on the tube"
+    assert len(said) == 1 and "without a Z channel" in str(said[0].message)
+    assert "0.30" in str(said[0].message)
+    # control: with Z the dimmed stroke is dimmer, and nothing is warned
+    full, dim, said = pictures[3]
+    assert dim < full - 30 and said == []
 
 
 def test_the_usable_area_outline_is_drawn_faintly():

@@ -1,7 +1,10 @@
-"""Commands `pattern`, `fit`, `anode` and `spots`: measure a tube once, correct every drawing.
+"""Commands `pattern`, `fit`, `check`, `anode` and `spots`: measure a tube once, correct every
+drawing, and measure what is left.
 
     vectorgen pattern grid -o grid.wav --sheet grid.csv [--rows 7 --cols 9] [--profile T.toml]
     vectorgen fit grid.csv -o tube.toml [--base T.toml] [--kv 8.0] [--deflection magnetic]
+    vectorgen pattern check -o check.wav --sheet check.csv --profile tube.toml
+    vectorgen check check.csv --tolerance-mm 0.5
     vectorgen anode tube.toml --kv 9.0
     vectorgen pattern box -o box.wav --sheet box.csv --profile tube.toml
     vectorgen fit --gains-only box.csv --base tube.toml -o tube.toml
@@ -71,40 +74,83 @@ def cmd_pattern(args) -> int:
     check_output_path(args.sheet, (".csv",))
     if args.output is not None and os.path.abspath(args.sheet) == os.path.abspath(args.output):
         raise VectorgenError("the signal (-o) and the sheet (--sheet) must be different files")
+    _check_sheet_free(args.sheet, args.replace_sheet)
     if args.preview:
         check_output_path(args.preview, (".png",))
     _check_seconds(args.seconds)
     _check_finite(args.extent, "--extent")
     profile, renderer = load_setup(args)
+    if args.kind == "check" and not profile.deflection.calibrated:
+        _warn("the check pattern is drawn through an uncalibrated profile (give --profile "
+              "with the fitted one): it will measure the uncorrected tube")
     pat = make_pattern(args.kind, profile, rows=args.rows, cols=args.cols, extent=args.extent,
                        mark=args.mark)
     frame = renderer.frame(pat.strokes)
     repeats = repeats_for(args.seconds, renderer.rate, frame.samples)
-    if args.mark == "dot":
-        _warn("dot marks hold the beam on a few spots: keep the brightness low, a dwelling spot "
-              "burns the phosphor")
+    device = _device_for(args, renderer) if args.play else None     # before any file is written
+    kept = []
     if args.output is not None:
+        kept.append(_keep_old(args.output))
         write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
                      frame.names, pcm16=args.pcm16)
-    backup = write_sheet(args.sheet, pat.names, pat.drive)
+    kind = "check" if args.kind == "check" else "fit"
+    places = pat.nominal_mm if kind == "check" else pat.drive
+    backup = write_sheet(args.sheet, pat.names, places, kind=kind)
     if args.preview:
-        write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
-                                               frame.plan.lit, chain=renderer.chain,
-                                               rate=renderer.rate))
+        kept.append(write_png(args.preview, phosphor_image(
+            frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
+            rate=renderer.rate, intensity=frame.plan.intensity)))
     if not args.quiet:
         rep = frame.report(profile)
         print(report_line(rep) + (f"; wrote {repeats} frame(s) to {args.output}"
                                   if args.output is not None else ""))
         print(f"{args.kind} pattern: {len(pat.names)} targets; "
               + "; ".join(pat.notes) + f"; sheet {args.sheet}"
-              + (f" (previous sheet kept as {backup})" if backup else ""))
+              + (f" (previous sheet kept as {backup})" if backup else "")
+              + _kept_text(kept))
         print("measure where each target's centre lands, in mm from the centre of the face "
-              "(+x right, +y up), and fill measured_x_mm, measured_y_mm")
+              "(+x right, +y up), and fill measured_x_mm, measured_y_mm"
+              + ("; then: vectorgen check SHEET.csv --tolerance-mm MM" if kind == "check"
+                 else ""))
     if args.play:
         from .live import play_frame
 
-        return play_frame(frame, profile, args.device, args.seconds, args.quiet)
+        return play_frame(frame, profile, device, args.seconds, args.quiet)
     return 0
+
+
+def _check_sheet_free(path: str, replace: bool) -> None:
+    """Refuse, before any work, to replace a sheet that holds measurements (or a file that is
+    not a sheet), unless asked to (the old file is then kept as a backup)."""
+    from calibration.sheet import sheet_in_the_way
+
+    why = sheet_in_the_way(path)
+    if why and not replace:
+        raise VectorgenError(f"{why}: give another --sheet, or --replace-sheet to replace it "
+                             f"(it is then kept as {os.path.basename(path)}.bakN)")
+
+
+def _device_for(args, renderer):
+    """The --play device, found and checked before anything is written: a device that is
+    missing or refuses the settings must not cost the user a file."""
+    from .. import live
+
+    device = live.find_device(args.device)
+    live.check_device(device, renderer.channels, renderer.rate)
+    return device.index
+
+
+def _keep_old(path: str) -> str | None:
+    """Keep a file about to be rewritten as a numbered backup (signal files are written by
+    sinks.write_signal, which keeps none itself)."""
+    from ..files import keep_backup
+
+    return keep_backup(path)
+
+
+def _kept_text(backups) -> str:
+    kept = [b for b in backups if b]
+    return f"; previous file(s) kept as {', '.join(kept)}" if kept else ""
 
 
 def _signal_pattern(args) -> int:
@@ -164,13 +210,16 @@ def _step_pattern(args) -> int:
         raise type(exc)(f"{exc} (option {flag})" if flag else str(exc), exc.parameter) from None
     rate = renderer.rate
     repeats = repeats_for(args.seconds, rate, len(step.signal))
+    kept = []
     if args.output is not None:
         _check_size(repeats * step.signal.size)
+        kept.append(_keep_old(args.output))
         write_signal(args.output, np.tile(step.signal, (repeats, 1)), rate, step.names,
                      pcm16=args.pcm16)
     if not args.quiet:
         print("step pattern: " + "; ".join(step.notes)
-              + (f"; wrote {repeats} period(s) to {args.output}" if args.output else ""))
+              + (f"; wrote {repeats} period(s) to {args.output}" if args.output else "")
+              + _kept_text(kept))
         print(f"capture the {args.axis} yoke current (the voltage across its sense resistor) "
               f"with a timebase showing some of the old level and five time constants after "
               f"an edge, save it as CSV, then: vectorgen fit-response CAPTURE.csv --axis "
@@ -220,16 +269,19 @@ def _ztiming_pattern(args) -> int:
     if renderer.channels < 3:
         _warn("the Z timing pattern needs the Z channel (--channels 3 or [output] channels = 3): "
               "without it every jump between the dashes is lit too")
+    kept = []
     if args.output is not None:
+        kept.append(_keep_old(args.output))
         write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
                      frame.names, pcm16=args.pcm16)
     if args.preview:
-        write_png(args.preview, phosphor_image(frame.signal, profile, renderer.channels,
-                                               frame.plan.lit, chain=renderer.chain,
-                                               rate=renderer.rate))
+        kept.append(write_png(args.preview, phosphor_image(
+            frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
+            rate=renderer.rate, intensity=frame.plan.intensity)))
     if not args.quiet:
         print(report_line(frame.report(profile)) + (f"; wrote {repeats} frame(s) to "
-                                                    f"{args.output}" if args.output else ""))
+                                                    f"{args.output}" if args.output else "")
+              + _kept_text(kept))
         print(pat.text)
     if args.play:
         from .live import play_frame
@@ -271,11 +323,13 @@ def _default_residuals_path(profile_path: str) -> str:
 
 def cmd_fit(args) -> int:
     from calibration.anode import check_kv
-    from calibration.fit import (fit_sheet, fitted_profile, report_lines, warnings_for,
-                                 write_residual_png)
+    from calibration.area import choose_area, with_area
+    from calibration.fit import (check_model, fit_sheet, fitted_profile, make_report,
+                                 report_lines, rewired, warnings_for, write_residual_png)
     from calibration.sheet import read_sheet
+    from calibration.wiring import diagnose
 
-    from ..files import atomic_write_bytes, check_output_path
+    from ..files import check_output_path, write_with_backup
     from ..profile import load_profile, save_profile
 
     check_output_path(args.output, (".toml",))
@@ -289,38 +343,135 @@ def cmd_fit(args) -> int:
         raise VectorgenError("--gains-only keeps the rotation, skew and pincushion of a fitted "
                              "profile: give it with --base PROFILE")
     base = load_profile(args.base)
-    sheet = read_sheet(args.sheet)
+    sheet = read_sheet(args.sheet, "fit")
     result = fit_sheet(sheet, base, terms=args.terms, gains_only=args.gains_only)
     if result.skipped:
         _warn(f"{len(result.skipped)} row(s) without both measurements left out: "
               f"{_name_list(result.skipped)}")
     for n in result.notes:
         _warn(n)
+    fixed = None
+    if args.fix_wiring:
+        wiring = diagnose(result.model.matrix, base.output.order, base.output.invert)
+        if wiring.needs_fix:
+            base = base.copy()
+            base.output.order, base.output.invert = list(wiring.order), list(wiring.invert)
+            result = rewired(result, wiring)
+            result.report = make_report(result, base, sheet)
+            fixed = wiring
+        elif not args.quiet:
+            print("--fix-wiring: the wiring is as the profile says, nothing to fix"
+                  if wiring.finding == "as-profile" else
+                  "--fix-wiring: no wiring mistake can be named, nothing changed")
     rep = result.report
     for w in warnings_for(rep):
         _warn(w)
     name = args.name
     if name is None and args.base is None:
         name = f"tube calibrated from {sheet.path}"
-    kind = args.deflection
-    prof = fitted_profile(base, result, kind=kind, anode_kv=args.kv, name=name)
+    prof = fitted_profile(base, result, kind=args.deflection, anode_kv=args.kv, name=name)
+    area = choose_area(result.model, base.screen, args.area)
+    prof = with_area(prof, area.written)
+    rep.update(area.report())
+    if area.changed:
+        # the figures of the area now in the profile (the pincushion terms rescaled to it)
+        from ..deflection import DeflectionModel
+
+        rep.update(check_model(DeflectionModel.from_profile(prof), prof.screen))
+        rep.update(k_radial=prof.deflection.k_radial, k_x=prof.deflection.k_x,
+                   k_y=prof.deflection.k_y)
+    if area.mode == "keep" and area.scale is not None and area.scale < 1:
+        _warn(f"the usable area kept needs drive up to {rep['max_drive_usable_area']:.3f}, "
+              f"beyond full scale: drawings near its edge will be refused (leave out --area "
+              f"keep to write the area the tube reaches, or raise the amplifier gain)")
     rep.update(deflection=prof.deflection.kind, anode_kv=prof.deflection.anode_kv or None,
-               profile=args.output, base=args.base or "<built-in>", residual_picture=residuals)
+               profile=args.output, base=args.base or "<built-in>", residual_picture=residuals,
+               wiring_fixed=fixed is not None)
     if not prof.deflection.anode_kv:
         _warn("the profile does not record the anode voltage (give --kv KV): `vectorgen anode` "
               "needs it to rescale the gains later")
-    mag = write_residual_png(residuals, result, prof.screen)
+    mag, picture_backup = write_residual_png(residuals, result, prof.screen)
     rep["residual_magnification"] = mag
     backup = save_profile(prof, args.output)
     rep["backup"] = backup
+    kept = [picture_backup]
     if args.report:
-        atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
+        kept.append(write_with_backup(args.report, (json.dumps(rep, indent=2) + "\n").encode(),
+                                      (".json",)))
     if not args.quiet:
         for line in report_lines(rep):
             print(line)
+        print(area.text())
+        if fixed is not None:
+            print(f"wiring fixed in the profile: [output] order = {fixed.order}, invert = "
+                  f"{fixed.invert}, the matrix turned to match (the drawings land where they "
+                  f"did; the figures above are for the fixed map)")
         print(f"wrote {args.output}" + (f" (previous profile kept as {backup})" if backup else "")
-              + f"; residuals x{mag:g} in {residuals}")
+              + f"; residuals (arrows from fitted to measured position) x{mag:g} in {residuals}"
+              + _kept_text(kept))
+        print("next: draw the check pattern through it (vectorgen pattern check --sheet "
+              "CHECK.csv --profile " + args.output + ") and measure what is left")
     return 0
+
+
+# --- check --------------------------------------------------------------------------------------
+
+def cmd_check(args) -> int:
+    from calibration.check import check_sheet
+    from calibration.fit import write_arrows_png
+    from calibration.sheet import read_sheet
+
+    from ..files import check_output_path, write_with_backup
+
+    if args.report:
+        check_output_path(args.report, (".json",))
+    if args.residuals:
+        check_output_path(args.residuals, (".png",))
+    tol = _check_finite(args.tolerance_mm, "--tolerance-mm")
+    if not tol > 0:
+        raise VectorgenError(f"--tolerance-mm must be a distance > 0 mm (got {tol:g})")
+    sheet = read_sheet(args.sheet, "check")
+    res = check_sheet(sheet, tol)
+    if res.skipped:
+        _warn(f"{len(res.skipped)} row(s) without both measurements left out: "
+              f"{_name_list(res.skipped)}")
+    for n in res.notes:
+        _warn(n)
+    rep = res.report()
+    rep["sheet"] = sheet.path
+    kept = []
+    if args.residuals:
+        screen = _outline_for(args.profile, res.target)
+        mag, b = write_arrows_png(args.residuals, res.target, res.error, res.names, screen,
+                                  "target", f"check: remaining error, RMS {rep['rms_mm']:.3f} "
+                                  f"mm, worst {rep['worst_mm']:.3f} mm")
+        rep["residual_magnification"] = mag
+        kept.append(b)
+    if args.report:
+        kept.append(write_with_backup(args.report, (json.dumps(rep, indent=2) + "\n").encode(),
+                                      (".json",)))
+    if not args.quiet:
+        for line in res.lines():
+            print(line)
+        if args.residuals:
+            print(f"arrows from target to measured position x{rep['residual_magnification']:g} "
+                  f"in {args.residuals}" + _kept_text(kept))
+    return 0 if res.passed else 1
+
+
+def _outline_for(profile_path, targets):
+    """The usable area to outline in the check's picture: the profile's, or without one a box
+    a little larger than the targets."""
+    if profile_path is not None:
+        from ..profile import load_profile
+
+        return load_profile(profile_path).screen
+    import numpy as np
+
+    from ..screen import Screen
+
+    half = 1.1 * np.abs(targets).max(axis=0)
+    return Screen(width_mm=float(2 * max(half[0], 1.0)), height_mm=float(2 * max(half[1], 1.0)))
 
 
 # --- anode --------------------------------------------------------------------------------------
@@ -342,14 +493,20 @@ def cmd_anode(args) -> int:
     new, f, kv_old = rescale_profile(prof, args.kv, args.from_kv)
     from ..deflection import DeflectionModel
 
-    reach = check_model(DeflectionModel.from_profile(new), new.screen)["max_drive_usable_area"]
+    model = DeflectionModel.from_profile(new)
+    reach = check_model(model, new.screen)["max_drive_usable_area"]
     backup = save_profile(new, out)
     g_old = geometry(np.asarray(prof.deflection.matrix_mm))
     g_new = geometry(np.asarray(new.deflection.matrix_mm))
     if reach > 1.0:
+        from calibration.area import choose_area, screen_text
+
+        area = choose_area(model, new.screen)
+        size = (f" to {screen_text(area.reached)}, the most it reaches" if area.reached
+                else "")
         _warn(f"at {args.kv:g} kV the usable area needs drive up to {reach:.3f}, beyond full "
-              f"scale: drawings near its edge will be refused (raise the amplifier gain or "
-              f"shrink [screen])")
+              f"scale: drawings near its edge will be refused (raise the amplifier gain, or "
+              f"shrink [screen]{size}; the box trim's fit does that)")
     if not args.quiet:
         print(f"{new.deflection.kind} deflection, {kv_old:g} kV -> {args.kv:g} kV: gains x{f:.6f} "
               f"(the same spot now needs x{1 / f:.6f} the drive); gain x "
@@ -384,15 +541,16 @@ def cmd_spots(args) -> int:
                          min_area=args.min_area, overwrite=args.overwrite)
     for n in res.notes:
         _warn(n)
-    if args.overlay:
-        res.write_overlay(args.overlay)
+    overlay_backup = res.write_overlay(args.overlay) if args.overlay else None
     if not res.filled:
-        print(f"{res.summary}; nothing new to fill, {out} not written")
+        print(f"{res.summary}; nothing new to fill, {out} not written"
+              + _kept_text([overlay_backup]))
         return 0
-    backup = write_sheet(out, sheet.names, sheet.drive, res.measured)
+    backup = write_sheet(out, sheet.names, sheet.coords, res.measured, kind=sheet.kind)
     if not args.quiet:
         print(f"{res.summary}; filled {len(res.filled)} row(s) of {out}"
-              + (f" (previous sheet kept as {backup})" if backup else ""))
+              + (f" (previous sheet kept as {backup})" if backup else "")
+              + _kept_text([overlay_backup]))
     return 0
 
 
@@ -409,13 +567,17 @@ def register(sub) -> None:
         "measured_x_mm, measured_y_mm, the measured columns empty for you to fill in (mm from "
         "the centre of the face, +x right, +y up). grid: ROWS x COLS targets for the full fit "
         "and linearity; box: centre and four corners for a quick gain trim; circle: a circle "
-        "in the drawing with ticks every 45 degrees, for an aspect check. Two patterns have no "
+        "in the drawing with ticks every 45 degrees, for an aspect check; check: ROWS x COLS "
+        "targets at round millimetre positions drawn through a calibrated profile, whose sheet "
+        "lists where each should land (target_x_mm, target_y_mm), for `vectorgen check`. A "
+        "sheet that holds measurements is never replaced unless --replace-sheet is given. "
+        "Two patterns have no "
         "targets and no sheet: step, a slow square wave of jumps on one axis with the beam "
         "blanked, to capture the yoke current for `vectorgen fit-response`; ztiming, rows of "
         "dashes drawn alternately left to right and right to left over a scale of ticks, that "
         "shows how early or late Z acts.")
-    p.add_argument("kind", choices=("grid", "box", "circle", "step", "ztiming"),
-                   metavar="grid|box|circle|step|ztiming")
+    p.add_argument("kind", choices=("grid", "box", "circle", "check", "step", "ztiming"),
+                   metavar="grid|box|circle|check|step|ztiming")
     p.add_argument("--play", action="store_true",
                    help="show the pattern live through the audio interface (until Ctrl-C or "
                         "--seconds)")
@@ -424,10 +586,13 @@ def register(sub) -> None:
     p.add_argument("-o", "--output", default=None, metavar="OUT",
                    help="signal file: .wav, .csv, .raw or .bin")
     p.add_argument("--sheet", default=None, metavar="SHEET.csv",
-                   help="measurement sheet to write (an existing file is kept as SHEET.csv.bakN;"
-                        " grid, box and circle)")
-    p.add_argument("--rows", type=int, default=7, help="grid rows (default 7)")
-    p.add_argument("--cols", type=int, default=9, help="grid columns (default 9)")
+                   help="measurement sheet to write (grid, box, circle and check); an empty "
+                        "sheet already there is kept as SHEET.csv.bakN, one holding measurements "
+                        "is refused")
+    p.add_argument("--replace-sheet", action="store_true",
+                   help="replace a sheet that holds measurements (it is kept as SHEET.csv.bakN)")
+    p.add_argument("--rows", type=int, default=7, help="grid and check rows (default 7)")
+    p.add_argument("--cols", type=int, default=9, help="grid and check columns (default 9)")
     p.add_argument("--extent", type=float, default=0.9, metavar="FRACTION",
                    help="the targets fill this fraction of the usable area, judged with the "
                         "profile (default 0.9)")
@@ -451,11 +616,15 @@ def register(sub) -> None:
     p = sub.add_parser(
         "fit", help="fit the deflection model to a measurement sheet",
         description="Fit the deflection model p = D(A u + c) to a filled measurement sheet by "
-        "least squares and write a profile: the base profile's screen, channels and timing "
-        "with the fitted deflection. Reports gains, rotation, skew, pincushion, residuals and "
-        "linearity, and draws the residuals (arrows from fitted to measured, magnified). Rows "
-        "without measurements are left out with a warning; with few rows fewer terms are "
-        "fitted. An existing profile at OUT is kept as OUT.bakN.")
+        "least squares and write a profile: the base profile's channels and timing with the "
+        "fitted deflection, and the largest usable area of the base's shape the fitted tube "
+        "reaches within full scale (--area). Reports gains, rotation, skew, pincushion, the "
+        "residual of the fitted model, the linearity of the uncorrected tube, each with the "
+        "number of targets it rests on, names wiring mistakes (mirrored, swapped or inverted "
+        "axes) with the change that fixes them, and draws the residuals (arrows from fitted "
+        "to measured, magnified). Rows without measurements are left out with a warning; with "
+        "few rows fewer terms are fitted. Files already at OUT, the report and the picture "
+        "are kept as numbered backups (.bakN).")
     p.add_argument("sheet", metavar="SHEET.csv")
     p.add_argument("-o", "--output", required=True, metavar="PROFILE.toml")
     p.add_argument("--base", metavar="PROFILE", help="keep this profile's screen, output and "
@@ -470,12 +639,42 @@ def register(sub) -> None:
     p.add_argument("--gains-only", action="store_true",
                    help="trim only the gains and offset of --base (e.g. from the box pattern "
                         "after an anode change), keeping its rotation, skew and pincushion")
+    p.add_argument("--area", choices=("shrink", "reach", "keep"), default="shrink",
+                   help="the usable area written: shrink (default) the base's [screen] to the "
+                        "largest area of its shape the fitted tube reaches within full scale, "
+                        "never enlarging it; reach: that area, larger too (when the base's "
+                        "[screen] is not the face, e.g. the built-in 100 x 80 mm); keep: the "
+                        "base's [screen] as it is")
+    p.add_argument("--fix-wiring", action="store_true",
+                   help="when the fit shows swapped or inverted axes, write the [output] order "
+                        "and invert that undo them, with the matrix to match (no new "
+                        "measurements needed)")
     p.add_argument("--report", metavar="FILE.json", help="also write the report as JSON")
     p.add_argument("--residuals", metavar="FILE.png",
                    help="residual picture (default: PROFILE-residuals.png)")
     p.add_argument("--name", help="the profile's name (default: the base's)")
     p.add_argument("-q", "--quiet", action="store_true")
     p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser(
+        "check", help="the remaining error of a calibrated tube, from the check pattern's sheet",
+        description="Read the check pattern's sheet (`vectorgen pattern check`, drawn through "
+        "the calibrated profile) with the measured positions filled in, and report what is "
+        "left after calibration: the distance from each target's intended position to where "
+        "it landed (nothing is fitted to these points), as RMS, worst and per axis, the shift "
+        "and size of the whole picture, and a verdict against --tolerance-mm (exit status 0 "
+        "within it, 1 beyond it).")
+    p.add_argument("sheet", metavar="SHEET.csv")
+    p.add_argument("--tolerance-mm", type=float, required=True, metavar="MM",
+                   help="the largest distance from target you accept, mm")
+    p.add_argument("--report", metavar="FILE.json", help="also write the result as JSON")
+    p.add_argument("--residuals", metavar="FILE.png",
+                   help="also draw arrows from each target to where it landed (magnified)")
+    p.add_argument("--profile", metavar="TOML",
+                   help="with --residuals: the profile whose usable area is outlined "
+                        "(default: a box around the targets)")
+    p.add_argument("-q", "--quiet", action="store_true")
+    p.set_defaults(func=cmd_check)
 
     p = sub.add_parser(
         "anode", help="rescale a profile's gains for a new anode voltage",
