@@ -29,11 +29,24 @@ Start and stop
 Counting
     Underruns are the callbacks that PortAudio flags with output_underflow; late frames are
     scene updates that missed the frame boundary they were due at.
+
+When the audio server or the device goes away
+    A stream whose server died goes inactive without finishing, and one whose server hangs
+    stops calling back: `Player.check_alive` tells either from a normal end, so the player
+    can stop within a second or two and say so. Nothing then waits on the audio library
+    without a bound: closing a stream whose server is gone can block for ever inside it, so a
+    dead stream is not closed at all, and any other close runs on a daemon thread for at most
+    CLOSE_WAIT_S. A stream left unclosed is *abandoned* (`abandon_audio`): PortAudio's exit
+    handler (which would close it and block, or abort) is dropped, and the library's own
+    messages on standard error are muted, so the process ends with its one line.
 """
 
 from __future__ import annotations
 
+import os
+import sys
 import threading
+import time
 from collections import deque
 from dataclasses import dataclass
 
@@ -42,8 +55,8 @@ import numpy as np
 from .channels import ChannelMap
 from .errors import DeviceError, InputError
 
-__all__ = ["Device", "Player", "Producer", "check_device", "find_device", "output_devices",
-           "park_levels", "ramp", "ramp_weights", "sounddevice"]
+__all__ = ["Device", "Player", "Producer", "abandon_audio", "check_device", "find_device",
+           "output_devices", "park_levels", "ramp", "ramp_weights", "run_bounded", "sounddevice"]
 
 PORTAUDIO_MISSING = ("PortAudio library not found: install the system package libportaudio2 "
                      "(Debian/Ubuntu: apt-get install libportaudio2)")
@@ -54,6 +67,9 @@ PARK_HOLD_MS = 20.0     # hold at the park position before the stream stops
 MAX_PENDING = 64        # prepared frames waiting in the queue at most
 LOOKAHEAD_S = 0.5       # render scene updates up to this long before they are due
 PRIME_S = 0.25          # updates due this soon after the start are made before it
+STALL_S = 1.5           # no callback for this long (at least) while playing: the stream stalled
+CLOSE_WAIT_S = 1.0      # a close that takes longer is left to itself
+START_WAIT_S = 10.0     # a stream that takes longer to start is given up
 
 
 def sounddevice():
@@ -165,6 +181,70 @@ def _one_line(exc) -> str:
     return " ".join(str(exc).split())
 
 
+# --- calls into the audio library that may never return -----------------------------------------
+
+def run_bounded(fn, wait_s: float, give_up=None, name: str = "vectorgen-audio"):
+    """Call `fn()` on a daemon thread and wait at most `wait_s` for it (less once `give_up()`
+    is true, checked every 50 ms). Returns (finished, result, exception); a call that has not
+    finished is left to itself (the process can still end: the thread is a daemon).
+
+    Examples
+    --------
+    >>> run_bounded(lambda: 6 * 7, 1.0)
+    (True, 42, None)
+    >>> run_bounded(lambda: time.sleep(5), 0.1)[0]
+    False
+    """
+    box: dict = {}
+
+    def call():
+        try:
+            box["result"] = fn()
+        except BaseException as exc:        # handed to the caller
+            box["error"] = exc
+
+    t = threading.Thread(target=call, name=name, daemon=True)
+    t.start()
+    deadline = time.monotonic() + wait_s
+    while t.is_alive():
+        left = deadline - time.monotonic()
+        if left <= 0 or (give_up is not None and give_up()):
+            break
+        t.join(min(0.05, left))
+    if t.is_alive():
+        return False, None, None
+    return True, box.get("result"), box.get("error")
+
+
+_ABANDONED = []
+
+
+def abandon_audio() -> None:
+    """Let the process end with a stream that cannot be closed: drop sounddevice's exit handler
+    (it would stop and close the stream and terminate PortAudio, which blocks or aborts once
+    the audio server is gone) and mute what the audio libraries print on file descriptor 2
+    from now on (Python's own standard error moves to a copy of the descriptor)."""
+    if _ABANDONED:
+        return
+    _ABANDONED.append(True)
+    sd = sys.modules.get("sounddevice")
+    handler = getattr(sd, "_exit_handler", None)
+    if handler is not None:
+        import atexit
+
+        atexit.unregister(handler)
+    try:
+        sys.stderr.flush()
+        keep = os.dup(2)
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, 2)
+        os.close(devnull)
+        sys.stderr = os.fdopen(keep, "w", buffering=1, encoding=getattr(
+            sys.stderr, "encoding", None) or "utf-8", errors="backslashreplace")
+    except (OSError, ValueError):
+        pass
+
+
 # --- park position and ramps ---------------------------------------------------------------------
 
 def park_levels(output, channels: int, drive=PARK_DRIVE) -> tuple[np.ndarray, np.ndarray]:
@@ -252,6 +332,12 @@ class Player:
         self.callback_error: BaseException | None = None
         self.finished = threading.Event()
         self.stream = None
+        # liveness: when the callback last ran, and what went wrong with the stream
+        self.last_callback: float | None = None
+        self.started_at: float | None = None
+        self.stall_s = STALL_S
+        self.failure: str | None = None
+        self.abandoned = False
 
     # -- producer side -----------------------------------------------------------------------
     def submit(self, due: int, signal: np.ndarray, index: int,
@@ -366,6 +452,7 @@ class Player:
         return self._phase == _DONE
 
     def _callback(self, outdata, frames, time_info, status) -> None:
+        self.last_callback = time.monotonic()
         if status.output_underflow:
             self.underruns += 1
             if len(self.underrun_at) < 100:
@@ -381,18 +468,82 @@ class Player:
             raise self._sd.CallbackStop
 
     # -- stream --------------------------------------------------------------------------------
-    def start(self, device: int | None) -> None:
+    def start(self, device: int | None, give_up=None) -> None:
+        """Open and start the stream on `device` (waiting at most START_WAIT_S, less once
+        `give_up()` is true).
+
+        Raises
+        ------
+        DeviceError
+            The stream cannot be opened or started, or does not start in time.
+        """
         sd = sounddevice()
         self._sd = sd
-        try:
+
+        def open_and_start():
             self.stream = sd.OutputStream(samplerate=self.rate, channels=self.channels,
                                           dtype="float32", device=device, latency="high",
                                           callback=self._callback,
                                           finished_callback=self.finished.set)
             self.stream.start()
-        except sd.PortAudioError as exc:
+
+        done, _result, exc = run_bounded(open_and_start, START_WAIT_S, give_up)
+        if not done:
+            self.abandon()
+            if give_up is not None and give_up():
+                raise DeviceError("stopped while the audio stream was starting")
+            raise DeviceError(f"cannot start the audio stream: it did not start within "
+                              f"{START_WAIT_S:g} s (is the audio server running and "
+                              f"responding?)")
+        if isinstance(exc, sd.PortAudioError):
             self.close()
             raise DeviceError(f"cannot start the audio stream: {_one_line(exc)}") from None
+        if exc is not None:
+            self.close()
+            raise exc
+        self.started_at = time.monotonic()
+        latency = float(self.stream.latency or 0.0)
+        self.stall_s = max(STALL_S, 4 * latency)
+
+    def check_alive(self) -> str | None:
+        """None while the stream runs, or once it has ended as it should; otherwise (and from
+        then on) what went wrong, in words: the stream went inactive without finishing (its
+        server or device went away), or no callback came for `stall_s` (it stopped
+        responding)."""
+        st = self.stream
+        if self.failure is not None or st is None:
+            return self.failure
+        if self._phase == _DONE or self.callback_error is not None or self.finished.is_set():
+            return None
+        try:
+            active = bool(st.active)
+        except Exception:
+            active = False
+        if not active:
+            if self._phase == _DONE or self.finished.is_set():     # it ended meanwhile
+                return None
+            self.failure = ("the audio stream stopped by itself (the audio server or the "
+                            "device went away)")
+            return self.failure
+        last = self.last_callback if self.last_callback is not None else self.started_at
+        if last is not None:
+            quiet_s = time.monotonic() - last
+            if quiet_s > self.stall_s:
+                self.failure = (f"the audio stream stopped asking for samples (no callback "
+                                f"for {quiet_s:.1f} s: the audio server or the device stopped "
+                                f"responding)")
+        return self.failure
+
+    @property
+    def parked(self) -> bool:
+        """Whether the stop ramp and the hold at the park position have been played."""
+        return self._phase == _DONE
+
+    def excuse(self) -> None:
+        """The caller itself did not run for a while (the process was paused, or starved):
+        a quiet callback since then is no sign of a dead stream."""
+        if self.last_callback is not None or self.started_at is not None:
+            self.last_callback = time.monotonic()
 
     @property
     def latency(self) -> float:
@@ -404,13 +555,27 @@ class Player:
             return True
         return self.stream is None or not self.stream.active
 
-    def close(self) -> None:
-        if self.stream is not None:
-            try:
-                self.stream.close()
-            except Exception:
-                pass
-            self.stream = None
+    def close(self, wait_s: float = CLOSE_WAIT_S) -> bool:
+        """Close the stream, never waiting more than `wait_s`: a stream that failed
+        (`check_alive`) is not closed at all, and a close that does not return in time is
+        left on its daemon thread; either way the audio library is abandoned
+        (`abandon_audio`). True when the stream was closed."""
+        st = self.stream
+        if st is None:
+            return True
+        self.stream = None
+        if self.failure is not None:
+            self.abandon()
+            return False
+        done, _r, _e = run_bounded(st.close, wait_s)
+        if not done:
+            self.abandon()
+        return done
+
+    def abandon(self) -> None:
+        self.abandoned = True
+        self.stream = None
+        abandon_audio()
 
     def stats(self) -> dict:
         return {"frames": self.loops, "updates": self.switches, "late": self.late,

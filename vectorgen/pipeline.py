@@ -14,7 +14,7 @@ from functools import cached_property
 
 import numpy as np
 
-from .beamplan import ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, plan_frame
+from .beamplan import ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, order_frame, plan_frame
 from .channels import ChannelMap
 from .clip import clip_parts
 from .correction import check_full_scale, check_true_peak, plan_signal
@@ -407,6 +407,7 @@ class Renderer:
                 plan = self._plan(clipped, Timing.from_beam(self.profile.beam, self.rate,
                                                             slower))
         plan = balanced
+        self._order_of = (None,)
         del clipped
         if self.z_shift and self.cmap.has_z:
             self._delay_z(signal, plan)
@@ -479,8 +480,12 @@ class Renderer:
                 and b.max_writing_speed_mm_per_s > b.writing_speed_mm_per_s)
 
     def _plan(self, strokes, timing):
+        """The plan at these timings; the drawing order is worked out once per drawing."""
+        if getattr(self, "_order_of", (None,))[0] is not strokes:
+            self._order_of = (strokes, order_frame(strokes, self.settings.ordering, self.jumps))
         return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
-                          self.speed_cap if self.target is None else None)
+                          self.speed_cap if self.target is None else None,
+                          ordered=self._order_of[1])
 
     def _faster(self, strokes, plan):
         """Re-plan at the writing speed that brings the frame to refresh_target_hz, at most the

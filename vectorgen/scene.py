@@ -21,6 +21,9 @@ or a list mixing both; a one-point polyline is a dot. It may also be written `dr
 Helpers (import them from here): `clock`, `text`, `polyline`, `circle`, `dot`, `strokes`,
 `rotate`, `move`, `scaled`, `hms`.
 
+A scene script is Python run with the user's rights, like any program: run only scripts you
+trust. What it prints goes to standard error, so it never mixes with the tool's own output.
+
 Timing: update k has scene time t_k = START_TIME + k / UPDATE_HZ and is due at sample
 ceil(k * rate / UPDATE_HZ), counted from the start of the first frame. It goes on screen at
 the first frame boundary at or after that sample (a frame is never cut). Files
@@ -31,6 +34,7 @@ on whole multiples of 1 / UPDATE_HZ of the wall clock (a 1 Hz clock ticks with t
 
 from __future__ import annotations
 
+import builtins
 import inspect
 import math
 import os
@@ -43,11 +47,13 @@ from fractions import Fraction
 import numpy as np
 
 __all__ = ["FixedSchedule", "Scene", "WallClockSchedule", "as_strokes", "circle", "clock", "dot",
-           "hms", "load_scene", "move", "polyline", "rotate", "scaled", "scene_timeline",
-           "schedule_for", "script_error", "strokes", "text", "time_of_day"]
+           "hms", "iter_scene_timeline", "load_scene", "move", "polyline", "rotate", "scaled",
+           "scene_timeline", "schedule_for", "script_error", "strokes", "text", "time_of_day"]
 
+from .clip import MAX_STROKES
 from .clocktime import DAY_S, hms, parse_time_of_day
 from .errors import InputError, VectorgenError
+from .files import note_input
 from .flatten import circle_points
 from .sources import DrawingOptions, shape, stroke_text
 from .strokes import Strokes, concat, strokes_from_polylines
@@ -161,6 +167,16 @@ class Scene:
         """The drawing at scene time t; a failure in the script names its file and line."""
         try:
             value = self.draw(t, screen) if self.takes_screen else self.draw(t)
+        except KeyboardInterrupt:
+            raise
+        except BaseException as exc:
+            raise VectorgenError(script_error(exc, self.path, f"in draw(t={t:.3f})")) from None
+        if isinstance(value, (list, tuple)) and len(value) > MAX_STROKES:
+            # refused before the list is converted (that alone would take long)
+            raise InputError(f"scene {self.path}: draw(t={t:.3f}) returned {len(value)} "
+                             f"strokes; one frame can draw at most {MAX_STROKES} (draw less, "
+                             f"or join strokes into longer ones)")
+        try:
             drawing = as_strokes(value)
         except KeyboardInterrupt:
             raise
@@ -200,6 +216,16 @@ def script_error(exc: BaseException, path: str, when: str) -> str:
     return " ".join(f"scene script {where}: {what} ({when})".split())
 
 
+_SCRIPT_PRINT = builtins.print      # the script's own messages; the engine itself never prints
+
+
+def _to_stderr(*values, **options) -> None:
+    """`print` for scene scripts: to standard error unless the script names a file, so that a
+    script's messages never mix into the tool's output (a report line, a piped signal)."""
+    options.setdefault("file", sys.stderr)
+    _SCRIPT_PRINT(*values, **options)
+
+
 def parse_start_time(value, path: str) -> float:
     """START_TIME as seconds: a number, or "HH:MM[:SS]"."""
     if isinstance(value, (int, float)) and not isinstance(value, bool):
@@ -222,10 +248,12 @@ def load_scene(path: str) -> Scene:
         raise VectorgenError(f"scene script not found: {path}")
     if os.path.isdir(path):
         raise VectorgenError(f"scene script is a folder, not a file: {path}")
+    note_input(path, "scene script")
     folder = os.path.dirname(os.path.abspath(path))
     sys.path.insert(0, folder)          # the script may import modules beside it
     try:
-        env = runpy.run_path(os.path.abspath(path), run_name="__vectorgen_scene__")
+        env = runpy.run_path(os.path.abspath(path), init_globals={"print": _to_stderr},
+                             run_name="__vectorgen_scene__")
     except KeyboardInterrupt:
         raise
     except BaseException as exc:
@@ -328,29 +356,50 @@ def schedule_for(scene: Scene, rate: int, live_origin: float | None = None,
 
 def scene_timeline(path: str, renderer, seconds: float | None,
                    start: float | None = None) -> list:
-    """The frames of a scene for a file, as [(Frame, repeats), ...], on the scene's own clock
-    (t from START_TIME, or `start`): update k goes on at the first frame boundary at or after
-    its due sample, and the whole frames played fill at least `seconds` (one frame when None).
-    The same input always gives the same frames."""
+    """The frames of a scene for a file, as [(Frame, repeats), ...] (`iter_scene_timeline`
+    as a list)."""
+    return list(iter_scene_timeline(path, renderer, seconds, start))
+
+
+def iter_scene_timeline(path: str, renderer, seconds: float | None,
+                        start: float | None = None):
+    """The frames of a scene for a file, one (Frame, repeats) at a time, on the scene's own
+    clock (t from START_TIME, or `start`): update k goes on at the first frame boundary at or
+    after its due sample, and the whole frames played fill at least `seconds` (one frame when
+    None). The same input always gives the same frames. Each frame is made only when asked
+    for, so a long render holds one frame at a time.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> from vectorgen.pipeline import Renderer, Settings
+    >>> from vectorgen.profile import Profile
+    >>> p = os.path.join(tempfile.mkdtemp(), "s.py")
+    >>> _ = open(p, "w").write("UPDATE_HZ = 2\\ndef draw(t):\\n    return [(0, 0), (10 + t, 0)]\\n")
+    >>> parts = list(iter_scene_timeline(p, Renderer(Profile(), Settings(rate=1000)), 1.0))
+    >>> len(parts), sum(n * f.samples for f, n in parts) >= 1000     # t = 0 and t = 0.5
+    (2, True)
+    """
     scene = load_scene(path)
     sched = FixedSchedule(renderer.rate, scene.update_hz or 1.0,
                           scene.start_time if start is None else start)
     frame = scene.frame(renderer, sched.time(0))
     if seconds is None:
-        return [(frame, 1)]
+        yield frame, 1
+        return
     total = max(1, math.ceil(seconds * renderer.rate))
     if scene.update_hz == 0:
-        return [(frame, max(1, math.ceil(total / frame.samples)))]
-    out = []
+        yield frame, max(1, math.ceil(total / frame.samples))
+        return
     pos, k = 0, 0
     while True:
         L = frame.samples
         reps = max(1, -(-(sched.due(k + 1) - pos) // L))
         reps = min(reps, max(1, -(-(total - pos) // L)))
-        out.append((frame, reps))
+        yield frame, reps
         pos += reps * L
         if pos >= total:
-            return out
+            return
         while sched.due(k + 1) <= pos:
             k += 1
         frame = scene.frame(renderer, sched.time(k))

@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..clip import check_drawing_size
 from ..errors import InputError
 from ..strokes import Strokes
 from .budget import apportion, piece_steps
@@ -31,7 +32,7 @@ from .plan import Plan
 from .timing import Timing
 
 __all__ = ["MAX_FRAME_SAMPLES", "ORDERINGS", "LagJumps", "Plan", "ShapedJumps", "StraightJumps", "Timing", "apportion",
-           "greedy_order", "input_order", "tour_order", "plan_frame", "register_ordering",
+           "greedy_order", "input_order", "order_frame", "check_frame_size", "tour_order", "plan_frame", "register_ordering",
            "turn_deg", "CHUNK", "GAP"]
 
 MAX_FRAME_SAMPLES = 50_000_000   # ~17 minutes at 48 kHz: beyond this a frame is a mistake
@@ -40,7 +41,7 @@ CAP_BREAK = 1.25        # ... and a piece ends where the allowed speed changes b
 
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
-               ordering: str = "tour", jumps=None, speed_cap=None) -> Plan:
+               ordering: str = "tour", jumps=None, speed_cap=None, ordered=None) -> Plan:
     """The beam plan for one frame.
 
     Parameters
@@ -83,9 +84,11 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     """
     if strokes.count == 0:
         raise InputError("nothing to draw: the drawing is empty (or wholly off the screen)")
+    check_frame_size(strokes, timing, target_samples)
     strategy = ORDERINGS[ordering]
     jumps = timing.jumps if jumps is None else jumps
-    px, py, offs, stroke_intensity, drawn = _ordered(strokes, strategy, jumps)
+    px, py, offs, stroke_intensity, drawn = (ordered if ordered is not None else
+                                             _ordered(strokes, strategy, jumps))
     if speed_cap is not None:
         px, py, offs = _densified(px, py, offs, CAP_STEP_MM)
         if callable(drawn):
@@ -161,6 +164,59 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
                 blanked_length_mm=float(jump_len.sum()),
                 corners=int(sharp.sum() + closed_sharp.sum()),
                 jump_samples=int(move.sum()))
+
+
+def check_frame_size(strokes, timing: Timing, target_samples: int | None = None) -> None:
+    """The limits, before any ordering or layout: the drawing's size, and a frame that could
+    not be shorter than MAX_FRAME_SAMPLES (its strokes at the writing speed, one sample each
+    at least).
+
+    Raises
+    ------
+    InputError
+        Giving the numbers (parameter ``speed`` or ``frame_samples``).
+
+    Examples
+    --------
+    >>> from vectorgen.profile import Beam
+    >>> from vectorgen.strokes import strokes_from_polylines
+    >>> line = strokes_from_polylines([[(0.0, 0.0), (10.0, 0.0)]])
+    >>> check_frame_size(line, Timing.from_beam(Beam(), 48000))
+    >>> try:
+    ...     check_frame_size(line, Timing.from_beam(Beam(), 48000, 1e-300))
+    ... except InputError as exc:
+    ...     refused = str(exc)
+    >>> refused[:38]
+    'one frame would take at least 4.8e+305'
+    """
+    check_drawing_size(strokes)
+    if target_samples is not None:
+        if target_samples > MAX_FRAME_SAMPLES:
+            raise InputError(f"samples per frame must be at most {MAX_FRAME_SAMPLES} "
+                             f"(frame_samples={target_samples})", parameter="frame_samples")
+        return
+    pts = np.asarray(strokes.points, dtype=float)
+    step = np.hypot(np.diff(pts[:, 0]), np.diff(pts[:, 1]))
+    offs = np.asarray(strokes.offsets)
+    step[offs[1:-1] - 1] = 0.0                  # no step between one stroke and the next
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
+        least = float(np.float64(step.sum()) / np.float64(timing.spacing_mm)) + strokes.count
+    if not least <= MAX_FRAME_SAMPLES:          # (NaN or inf too)
+        need = (f"at least {least:.3g} samples, more than" if np.isfinite(least)
+                else "far more than")
+        speed = timing.spacing_mm * timing.rate
+        raise InputError(f"one frame would take {need} the {MAX_FRAME_SAMPLES} samples "
+                         f"({MAX_FRAME_SAMPLES / timing.rate:.0f} s at {timing.rate} Hz) a frame "
+                         f"may have: raise the writing speed or draw less"
+                         + (f" (speed={speed:.3g} mm/s)" if speed > 0 else ""),
+                         parameter="speed")
+
+
+def order_frame(strokes, ordering: str, jumps):
+    """The strokes in drawing order, for `plan_frame(..., ordered=...)`: a frame planned at
+    several writing speeds is ordered once (the order does not depend on the speed)."""
+    check_drawing_size(strokes)         # before the ordering's work
+    return _ordered(strokes, ORDERINGS[ordering], jumps)
 
 
 def _ordered(strokes, strategy, jumps):

@@ -6,7 +6,7 @@ import os
 import sys
 import time
 
-from ..errors import VectorgenError
+from ..errors import DeviceError, VectorgenError
 from .source_options import add_source_arguments
 from .terminal import CAUTIONS, Stopper, fmt_duration, status_line, wait_interval
 
@@ -74,6 +74,9 @@ def cmd_play(args) -> int:
 
             t0 = time_of_day(origin)
         frame = scene.frame(renderer, t0)
+    from .render import warn_if_coarse
+
+    warn_if_coarse(frame, profile)
     player = live.Player(frame.signal, rate, park, zmask, stop_after=stop_after)
     producer = None
     if animated:
@@ -98,9 +101,16 @@ def scene_updates(scene, renderer, schedule, first_frame):
     return render
 
 
+STOP_GRACE_S = 2.0      # after a stop request, wait this long at most for the ramp to park
+PAUSED_S = 0.5          # a wait loop step this much late: this process itself did not run
+PARK_WAIT_S = 0.5       # after a stall, wait this long for the stop ramp before giving up
+
+
 def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) -> int:
-    """Print the cautions, run the stream until it ends (--seconds, Ctrl-C, SIGTERM or an error),
-    park, print the summary line; raise the producer's or the callback's error as one line."""
+    """Print the cautions, run the stream until it ends (--seconds, Ctrl-C, SIGTERM, SIGHUP,
+    SIGQUIT or an error), park, print the summary line; raise the producer's or the
+    callback's error as one line, and a dead or stalled stream as a `DeviceError` naming the
+    device. Nothing here waits on the audio library without a bound (see `live.Player`)."""
     for line in CAUTIONS:
         print(f"vectorgen: {line}", file=sys.stderr)
 
@@ -109,42 +119,62 @@ def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) 
     tty = sys.stdout.isatty() and not quiet
     started = time.monotonic()
     stop_asked = None
+    failure = None
     try:
         with Stopper() as stopper:
-            player.start(device.index)
+            player.start(device.index, give_up=lambda: stopper.reason is not None)
             if producer is not None:
                 producer.start()
             step = wait_interval(player_seconds(player))
+            before = time.monotonic()
             while not player.wait(step):
+                now = time.monotonic()
+                if now - before > step + PAUSED_S:
+                    player.excuse()
+                before = now
+                failure = player.check_alive()
+                if failure is not None:
+                    break
                 if stopper.reason and stop_asked is None:
                     player.request_stop(stopper.reason)
-                    stop_asked = time.monotonic()
-                if stop_asked is not None and time.monotonic() - stop_asked > 5.0:
+                    stop_asked = now
+                if stop_asked is not None and (stopper.urgent
+                                               or now - stop_asked > STOP_GRACE_S):
                     break                    # the stream no longer runs its callback
                 if tty:
                     sys.stdout.write("\r" + status_line(player, device,
                                                               time.monotonic() - started))
                     sys.stdout.flush()
+            failure = failure or player.check_alive()
             if stopper.reason:
                 player.request_stop(stopper.reason)
+            if failure is not None:
+                player.request_stop("device")
+                if player.stream is not None and not stopper.urgent:
+                    player.wait(PARK_WAIT_S)     # a stall may end: then the beam is parked
+            _finish(player, producer)
     finally:
-        if producer is not None and producer.ident is not None:     # it was started
-            producer.halt()
-            producer.join(timeout=5.0)
-        player.close()
+        _finish(player, producer)
         sys.setswitchinterval(old_interval)
     s = player.stats()
     if tty:
         sys.stdout.write("\r\033[K")
     why = {"Ctrl-C": "stopped by Ctrl-C", "SIGTERM": "stopped by SIGTERM",
-           "error": "stopped by an error", "end": "end of --seconds"}.get(
-        player.stop_reason or "end", "stopped")
+           "SIGHUP": "stopped by SIGHUP", "SIGQUIT": "stopped by SIGQUIT",
+           "error": "stopped by an error", "end": "end of --seconds",
+           "device": "the audio output failed"}.get(player.stop_reason or "end", "stopped")
+    parked = "parked" if failure is None or player.parked else "not parked"
     print(f"played {fmt_duration(s['seconds'])} on '{device.name}' ({device.hostapi}) at "
           f"{rate} Hz, {channels} channels: frames {s['frames']}, updates {s['updates']}, "
-          f"late frames {s['late']}, underruns {s['underruns']}; {why}, parked")
+          f"late frames {s['late']}, underruns {s['underruns']}; {why}, {parked}")
     sys.stdout.flush()
     if os.environ.get("VECTORGEN_DEBUG") and player.underrun_at:
         print(f"underruns after samples {player.underrun_at}", file=sys.stderr)
+    if failure is not None:
+        beam = ("the beam was parked" if player.parked else
+                "the beam could not be parked (turn the brightness down)")
+        raise DeviceError(f"audio output on {device.describe()} failed after "
+                          f"{fmt_duration(s['seconds'])} of frames: {failure}; {beam}")
     if producer is not None and producer.error is not None:
         exc = producer.error
         if isinstance(exc, VectorgenError):
@@ -154,6 +184,15 @@ def run_stream(player, producer, device, rate: int, channels: int, quiet: bool) 
         exc = player.callback_error
         raise VectorgenError(f"audio callback failed: {type(exc).__name__}: {exc}")
     return 0
+
+
+def _finish(player, producer) -> None:
+    """Halt the producer (waiting a second at most: it may be inside a slow scene) and close
+    the stream (bounded, see `Player.close`)."""
+    if producer is not None and producer.ident is not None:     # it was started
+        producer.halt()
+        producer.join(timeout=1.0)
+    player.close()
 
 
 def player_seconds(player) -> float | None:
