@@ -30,6 +30,7 @@ import math
 
 from vectorgen.errors import VectorgenError
 
+MIN_KV = 0.001         # 1 V: below this it is no anode voltage (or it was given in MV)
 MAX_KV = 100.0      # above this it is not a CRT anode voltage (or it was given in volts)
 
 
@@ -58,9 +59,9 @@ def gain_factor(kind: str, kv_old: float, kv_new: float) -> float:
 
 
 def check_kv(kv: float, what: str = "--kv") -> float:
-    if not (isinstance(kv, (int, float)) and math.isfinite(kv) and 0 < kv <= MAX_KV):
-        raise VectorgenError(f"{what} must be an anode voltage in kV between 0 and {MAX_KV:g} "
-                             f"(got {kv!r}; give kilovolts, e.g. 8.5)")
+    if not (isinstance(kv, (int, float)) and math.isfinite(kv) and MIN_KV <= kv <= MAX_KV):
+        raise VectorgenError(f"{what} must be an anode voltage in kV between {MIN_KV:g} and "
+                             f"{MAX_KV:g} (got {kv!r}; give kilovolts, e.g. 8.5)")
     return float(kv)
 
 

@@ -129,8 +129,6 @@ def test_a_scene_script_starts_at_the_time_asked_in_a_timeline(tmp_path, scene):
     assert ys == pytest.approx([10.0, 15.0], abs=1e-6)          # draw(2), draw(3)
 
 
-@pytest.mark.xfail(strict=True, reason="cmd_render does not call timed_timeline yet (the "
-                   "render engineer wires it in; then remove this mark)")
 def test_render_of_the_clock_for_several_seconds_ticks(tmp_path):
     from scipy.io import wavfile
 

@@ -158,8 +158,6 @@ def test_any_profile_loads_and_renders_or_is_refused(data):
     check_signal(frame.signal, frame.signal.shape[1])
 
 
-@pytest.mark.xfail(strict=True, reason="profile.py: [beam] settle_us = 1e300 passes validation "
-                   "and ends in OverflowError (owner: profile); remove this mark once fixed")
 def test_known_gap_an_absurd_settle_time_is_refused_in_the_tools_words():
     from vectorgen.pipeline import Renderer, Settings
     from vectorgen.profile import profile_from_dict

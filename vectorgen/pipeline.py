@@ -14,7 +14,8 @@ from functools import cached_property
 
 import numpy as np
 
-from .beamplan import ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, order_frame, plan_frame
+from .beamplan import (ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, check_frame_size,
+                       order_frame, plan_frame)
 from .channels import ChannelMap
 from .clip import clip_parts
 from .correction import check_full_scale, check_true_peak, plan_signal
@@ -147,10 +148,13 @@ class Settings:
         if self.speed is not None and not (np.isfinite(self.speed) and self.speed > 0):
             raise InputError(f"writing speed must be > 0 mm/s (speed={self.speed})",
                              parameter="speed")
-        if self.refresh is not None and not (np.isfinite(self.refresh) and 0 < self.refresh
+        from .beamplan import MAX_FRAME_SAMPLES
+
+        least = self.rate / MAX_FRAME_SAMPLES
+        if self.refresh is not None and not (np.isfinite(self.refresh) and least <= self.refresh
                                              <= self.rate / 2):
-            raise InputError(f"refresh must be > 0 Hz and at most half the sample rate "
-                             f"(refresh={self.refresh})", parameter="refresh")
+            raise InputError(f"refresh must be at least {least:g} Hz and at most half the sample "
+                             f"rate (refresh={self.refresh:g})", parameter="refresh")
         if self.frame_samples is not None and self.frame_samples < 1:
             raise InputError(f"samples per frame must be >= 1 "
                              f"(frame_samples={self.frame_samples})", parameter="frame_samples")
@@ -482,6 +486,7 @@ class Renderer:
     def _plan(self, strokes, timing):
         """The plan at these timings; the drawing order is worked out once per drawing."""
         if getattr(self, "_order_of", (None,))[0] is not strokes:
+            check_frame_size(strokes, timing, self.target)
             self._order_of = (strokes, order_frame(strokes, self.settings.ordering, self.jumps))
         return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
                           self.speed_cap if self.target is None else None,

@@ -177,6 +177,10 @@ def _pair(v):
     return None
 
 
+def _microseconds(v):
+    return None if 0 <= v <= 1e6 and math.isfinite(v) else "must be between 0 and 1000000 us"
+
+
 def _pincushion(v):
     return None if math.isfinite(v) and abs(v) < 1.0 else "must be a number between -1 and 1"
 
@@ -216,11 +220,11 @@ SCHEMA = {
         "max_writing_speed_mm_per_s": (float, _positive),
         "refresh_target_hz": (float, _non_negative),
         "jump_speed_mm_per_s": (float, _non_negative),
-        "settle_us": (float, _non_negative),
-        "end_dwell_us": (float, _non_negative),
-        "corner_dwell_us": (float, _non_negative),
+        "settle_us": (float, _microseconds),
+        "end_dwell_us": (float, _microseconds),
+        "corner_dwell_us": (float, _microseconds),
         "corner_angle_deg": (float, _angle),
-        "dot_dwell_us": (float, _non_negative),
+        "dot_dwell_us": (float, _microseconds),
         "chord_tolerance_mm": (float, _positive),
         "flicker_hz": (float, _non_negative),
         "spot_mm": (float, _positive),
@@ -323,6 +327,8 @@ def load_profile(path: str | os.PathLike | None) -> Profile:
         data = tomllib.loads(raw.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
         raise ProfileError(f"{path}: not valid TOML: {exc}") from None
+    except RecursionError:
+        raise ProfileError(f"{path}: not valid TOML: nested too deeply") from None
     except UnicodeDecodeError:
         raise ProfileError(f"{path}: not a text file") from None
     return profile_from_dict(data, source=path)

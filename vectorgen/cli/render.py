@@ -151,15 +151,16 @@ def cmd_render(args) -> int:
                    ("scene script" if kind == "scene" else "drawing",
                     args.source if kind in ("scene", "file") else None)])
     _check_seconds(args.seconds)
+    _start, seconds = time_window(args, args.seconds)    # --time A..B sets the duration too
     profile, renderer = load_setup(args)
     rate, channels = renderer.rate, renderer.channels
-    if args.seconds is not None:            # before any frame is made: at least this much
-        _check_output_size(ext, math.ceil(args.seconds * rate), channels, args.pcm16, args)
-    parts = iter_timeline(args, profile, renderer, args.seconds)
+    if seconds is not None:                 # before any frame is made: at least this much
+        _check_output_size(ext, math.ceil(seconds * rate), channels, args.pcm16, args)
+    parts = timed_timeline(args, profile, renderer, seconds)
     first, repeats = next(parts)
-    static = kind != "scene"
+    static = kind != "scene" and not (ticks(args) and seconds is not None)
     expected = first.samples * repeats if static else max(
-        first.samples, math.ceil((args.seconds or 0) * rate))
+        first.samples, math.ceil((seconds or 0) * rate))
     if static:
         _check_output_size(ext, expected, channels, args.pcm16, args)
     counts = {"frames": 0, "distinct": 0}
@@ -190,7 +191,7 @@ def cmd_render(args) -> int:
 
             write_png(args.preview, phosphor_image(first.signal, profile, channels,
                                                    first.plan.lit, chain=renderer.hardware_chain,
-                                                   rate=rate))
+                                                   rate=rate, intensity=first.plan.intensity))
         if args.report:
             atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
         if not args.quiet:      # said before the files go into place: a failure writes none
@@ -339,27 +340,31 @@ def _ticking_clock(args, profile, renderer, seconds: float, start: float):
 def cmd_preview(args) -> int:
     """Picture what the tube shows: one frame, or, for a scene or the clock over a --time range,
     every frame of the range exposed together, each for as long as it is on screen."""
-    from ..files import check_output_path
+    from ..files import check_output_path, check_outputs, transaction
     from ..pipeline import report_line
     from ..preview import exposure_image, write_png, write_signal_plot
 
     check_output_path(args.output, (".png",))
     if args.signals:
         check_output_path(args.signals, (".png",))
+    check_outputs([("-o", args.output), ("--signals", args.signals)],
+                  [("profile", args.profile), ("drawing", args.source)])
     if not 16 <= args.width <= 8000:
         raise InputError(f"--width must be between 16 and 8000 pixels (got {args.width})")
-    if not (math.isfinite(args.spot) and args.spot > 0):
-        raise InputError(f"--spot must be > 0 mm (got {args.spot})")
+    if not (math.isfinite(args.spot) and 0.01 <= args.spot <= 100):
+        raise InputError(f"--spot must be between 0.01 and 100 mm (got {args.spot:g})")
     _start, seconds = time_window(args, None)
     profile, renderer = load_setup(args)
     parts = list(timed_timeline(args, profile, renderer, seconds))
     frame = parts[0][0]
-    kept = [write_png(args.output, exposure_image(
-        [(f.signal, f.plan.lit, f.plan.intensity, n * f.samples) for f, n in parts], profile,
-        renderer.channels, width_px=args.width, spot_mm=args.spot,
-        chain=renderer.hardware_chain, rate=renderer.rate))]
-    if args.signals:
-        kept.append(write_signal_plot(args.signals, frame.signal, frame.names, renderer.rate))
+    with transaction():
+        kept = [write_png(args.output, exposure_image(
+            [(f.signal, f.plan.lit, f.plan.intensity, n * f.samples) for f, n in parts],
+            profile, renderer.channels, width_px=args.width, spot_mm=args.spot,
+            chain=renderer.hardware_chain, rate=renderer.rate))]
+        if args.signals:
+            kept.append(write_signal_plot(args.signals, frame.signal, frame.names,
+                                          renderer.rate))
     if not args.quiet:
         kept = [k for k in kept if k]
         shown = (f"; {len(parts)} frames over {seconds:g} s exposed together" if len(parts) > 1
