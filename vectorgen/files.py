@@ -412,6 +412,10 @@ def _fill_backup(path: str, backup: str) -> bool:
         raise VectorgenError(f"cannot read {path} to keep a backup: {exc.strerror}") from None
     try:
         tmp = _write_temp(backup, lambda fh: fh.write(data))
+        try:                    # a backup is as private as the file it keeps
+            os.chmod(tmp, os.stat(path).st_mode & 0o7777)
+        except OSError:
+            pass
         os.replace(tmp, backup)
         _LIVE_TEMPS.discard(tmp)
     except BaseException:

@@ -186,7 +186,12 @@ class CsvStream:
             if self.pcm16:
                 np.savetxt(text, to_int16(chunk), fmt="%d", delimiter=",")
             else:
-                np.savetxt(text, np.asarray(chunk, dtype=np.float32), fmt="%.9g", delimiter=",")
+                # the shortest decimal that reads back as the same float32 (0.1, not
+                # 0.100000001)
+                n = chunk.shape[1]
+                flat = [str(v) for v in np.asarray(chunk, dtype=np.float32).ravel()]
+                text.write("\n".join(",".join(flat[i:i + n]) for i in range(0, len(flat), n))
+                           + "\n")
             data = text.getvalue().encode("ascii")
             self._last = (chunk, data)
         self.fh.write(data)
