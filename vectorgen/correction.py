@@ -158,7 +158,7 @@ def _where(plan, i: int) -> str:
 
 
 def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMap, rate: int,
-                true_peak: bool = False):
+                true_peak: bool = False, drive: np.ndarray | None = None):
     """The channel signal of a beam plan: correction, the stage chain, the full-scale check and
     the channel map. Returns (signal (n, channels) float32, peak |drive|, the final drive (n, 2)
     when it was made whole, else None, the true peak or None).
@@ -169,9 +169,10 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
     with the samples either side of it). Otherwise (Newton's iterations run on the whole
     frame; a filtering stage sees the whole loop), or when a chunk comes out beyond full
     scale (to be refused, or clipped within the slack), the frame is done whole. Both give the
-    same samples."""
-    if model.has_distortion or not chain.pointwise:
-        return _whole(plan, model, chain, cmap, rate, true_peak)
+    same samples. `drive`: the final drive, already worked out and checked (it is not made
+    again)."""
+    if drive is not None or model.has_distortion or not chain.pointwise:
+        return _whole(plan, model, chain, cmap, rate, true_peak, drive)
     n = plan.samples
     sig = np.empty((n, cmap.channels), dtype=np.float32)
     if cmap.has_z:                      # the Z level of every lit or blanked run
@@ -218,8 +219,9 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
     return sig, peak, None, (tp if true_peak else None)
 
 
-def _whole(plan, model, chain, cmap, rate, true_peak=False):
-    drive = check_full_scale(chain.frame(model.drive_from_xy(plan.x, plan.y), rate), plan)
+def _whole(plan, model, chain, cmap, rate, true_peak=False, drive=None):
+    if drive is None:
+        drive = check_full_scale(chain.frame(model.drive_from_xy(plan.x, plan.y), rate), plan)
     sig = np.empty((len(drive), cmap.channels), dtype=np.float32)
     cmap.write_xy(sig, drive)
     if cmap.has_z:

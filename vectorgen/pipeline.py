@@ -458,15 +458,18 @@ class Renderer:
     def _signal(self, plan, notes, extra):
         """Balancing, correction, the stages, the checks and the channel map for a plan:
         (signal, peak |drive|, the final drive or None, the plan as played)."""
+        final = tp = None
         if self.balancing:
-            plan = self._balanced(plan, notes, extra)
+            plan, final, tp = self._balanced(plan, notes, extra)
         elif self.profile.output.highpass_hz > 0:
-            shift = self.model.matrix @ self.model.drive_from_xy(plan.x, plan.y).mean(axis=0)
-            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(-shift)}
+            shift = self._picture_shift(self.model.drive_from_xy(plan.x, plan.y))
+            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(shift)}
             notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
-                         f"({-shift[0]:.2f}, {-shift[1]:.2f}) mm (balancing is off)")
-        signal, peak, drive, tp = plan_signal(plan, self.model, self.chain, self.cmap,
-                                              self.rate, self.checks_true_peak)
+                         f"({shift[0]:.2f}, {shift[1]:.2f}) mm (balancing is off)")
+        signal, peak, drive, made_tp = plan_signal(plan, self.model, self.chain, self.cmap,
+                                                   self.rate, self.checks_true_peak and tp is None,
+                                                   final)
+        tp = made_tp if tp is None else tp
         if tp is not None:
             extra["true_peak"] = _r(tp)
             if tp > 1.0:
@@ -600,22 +603,19 @@ class Renderer:
             tail_mm[-1] = np.array(plan.positions(0, 1)).ravel()   # exactly the frame's start
             length = float(np.hypot(*np.diff(np.vstack([tail_mm[-1:], tail_mm]), axis=0).T).sum())
             trial = plan.with_tail(tail_mm, 3, length)
+            d = self.model.drive_from_xy(trial.x, trial.y)
             try:
-                final = check_full_scale(self.chain.frame(
-                    self.model.drive_from_xy(trial.x, trial.y), self.rate), trial)
-                if self.checks_true_peak:
-                    check_true_peak(final, trial)
+                final = check_full_scale(self.chain.frame(d, self.rate), trial)
+                tp = check_true_peak(final, trial) if self.checks_true_peak else None
             except FullScaleError as exc:
                 last_err = exc
                 continue
-            d = self.model.drive_from_xy(trial.x, trial.y)
-            resid = self.model.matrix @ d.mean(axis=0)
             pts = self.model.drive_to_mm(np.vstack([info["p1"], info["p2"]]))
             extra["balance"] = {"dwell_samples": int(2 * info["m"]),
                                 "points_mm": [_r(pts[0]), _r(pts[1])], "reach": reach,
                                 "cost_samples": int(len(tail)),
                                 "cost_fraction": round(len(tail) / n, 6),
-                                "residual_shift_mm": _r(-resid),
+                                "residual_shift_mm": _r(self._picture_shift(d)),
                                 "switch_ready": bool(moment)}
             if self.settings.switch_ready and not moment:
                 notes.append("frame balanced for its mean only (its first moment would need "
@@ -627,7 +627,7 @@ class Renderer:
                              f"{pts[1, 1]:.1f}) mm show as lines; to move the picture instead "
                              f"turn balancing off (it would shift by "
                              f"{self._shift_text(corrected)})")
-            return trial
+            return trial, final, tp
         raise last_err
 
     def _balance_tail(self, S, M, s0, n, reach):
@@ -694,8 +694,12 @@ class Renderer:
         rows.append(hold)
         return np.vstack(rows)
 
+    def _picture_shift(self, drive) -> np.ndarray:
+        """(2,) mm the picture moves when an AC-coupled output removes the frame's mean."""
+        return -(self.model.matrix @ drive.mean(axis=0))
+
     def _shift_text(self, corrected) -> str:
-        shift = -(self.model.matrix @ corrected.mean(axis=0))
+        shift = self._picture_shift(corrected)
         return f"({shift[0]:.2f}, {shift[1]:.2f}) mm"
 
     # -- the drive, physically ---------------------------------------------------------------
