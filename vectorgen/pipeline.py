@@ -388,12 +388,15 @@ class Renderer:
                              "area of the screen")
         if self.settings.ordering != "input":
             clipped = merged(clipped, self.profile.beam.chord_tolerance_mm)
-        plan = self._plan(clipped, self.timing)
+        # the drawing order does not depend on the writing speed: worked out once
+        check_frame_size(clipped, self.timing, self.target)
+        ordered = order_frame(clipped, self.settings.ordering, self.jumps)
+        plan = self._plan(clipped, self.timing, ordered)
         notes: list[str] = []
         extra: dict = {}
         auto = self.auto_speed and plan.samples > self.rate / self.profile.beam.refresh_target_hz
         if auto:
-            plan, reached = self._faster(clipped, plan)
+            plan, reached = self._faster(clipped, plan, ordered)
             extra["writing_speed_auto"] = True
             if not reached:
                 notes.append(self._too_slow(clipped, plan))
@@ -409,10 +412,9 @@ class Renderer:
                     raise
                 slower = max(self.profile.beam.writing_speed_mm_per_s, 0.8 * speed)
                 plan = self._plan(clipped, Timing.from_beam(self.profile.beam, self.rate,
-                                                            slower))
+                                                            slower), ordered)
         plan = balanced
-        self._order_of = (None,)
-        del clipped
+        del clipped, ordered
         if self.z_shift and self.cmap.has_z:
             self._delay_z(signal, plan)
         frame = Frame(signal, self.cmap.names, plan, self.rate, self, drive, peak, n_clipped)
@@ -486,16 +488,12 @@ class Renderer:
         return (s.speed is None and self.target is None and b.refresh_target_hz > 0
                 and b.max_writing_speed_mm_per_s > b.writing_speed_mm_per_s)
 
-    def _plan(self, strokes, timing):
-        """The plan at these timings; the drawing order is worked out once per drawing."""
-        if getattr(self, "_order_of", (None,))[0] is not strokes:
-            check_frame_size(strokes, timing, self.target)
-            self._order_of = (strokes, order_frame(strokes, self.settings.ordering, self.jumps))
+    def _plan(self, strokes, timing, ordered):
+        """The plan at these timings, for the strokes in the order `order_frame` gave."""
         return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
-                          self.speed_cap if self.target is None else None,
-                          ordered=self._order_of[1])
+                          self.speed_cap if self.target is None else None, ordered=ordered)
 
-    def _faster(self, strokes, plan):
+    def _faster(self, strokes, plan, ordered):
         """Re-plan at the writing speed that brings the frame to refresh_target_hz, at most the
         profile's max_writing_speed_mm_per_s. Returns (plan, whether the target was reached)."""
         b = self.profile.beam
@@ -508,7 +506,7 @@ class Renderer:
             else:
                 speed = min(b.max_writing_speed_mm_per_s,
                             speed * plan.moving_samples / max(1, want - fixed) * 1.002)
-            plan = self._plan(strokes, Timing.from_beam(b, self.rate, speed))
+            plan = self._plan(strokes, Timing.from_beam(b, self.rate, speed), ordered)
             if plan.samples <= want or speed >= b.max_writing_speed_mm_per_s:
                 break
         return plan, plan.samples <= want
