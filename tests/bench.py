@@ -352,8 +352,8 @@ def main() -> int:
         results = [("samples per second, strokes -> channels", f">= {TARGET_SPS / 1e6:.0f} M/s",
                     f"{sps_frame / 1e6:.2f} M/s", sps_frame >= TARGET_SPS)]
         info = [("samples per second, SVG file -> channels",
-                 f"{sps_all / 1e6:.2f} M/s ({100 * t_parse / total:.0f} % of it svgpathtools "
-                 f"parsing)")]
+                 f"{sps_all / 1e6:.2f} M/s ({100 * t_parse / total:.0f} % of it reading the "
+                 f"document)")]
 
         # chord accuracy of both sides, in mm on the screen
         tol = renderer.profile.beam.chord_tolerance_mm
