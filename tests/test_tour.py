@@ -539,3 +539,33 @@ def test_print_timing_of_10000_strokes():
           f"travel / greedy = {travel / greedy.cost:.3f}")
     assert sorted(tour.order.tolist()) == list(range(10_000))
     assert tour.cost <= greedy.cost + 1e-9
+
+
+# --- neighbour queries against scipy.spatial ----------------------------------------------------
+
+@pytest.mark.parametrize("layout", ["scattered", "vertical line", "coincident", "lattice"])
+def test_close_pairs_of_small_sets_match_scipy_query_pairs(layout):
+    # reference: scipy.spatial.cKDTree.query_pairs, the set of pairs within r (the engine uses
+    # a sort along one axis below its KD-tree threshold; the answer must be the same set)
+    from scipy.spatial import cKDTree
+
+    from vectorgen.tour import _close_pairs
+
+    rng = np.random.default_rng(7)
+    if layout == "scattered":
+        xy = rng.uniform(0, 50, (400, 2))
+        r = 2.0
+    elif layout == "vertical line":              # every point at one x: the worst sort case
+        xy = np.column_stack([np.zeros(300), rng.uniform(0, 30, 300)])
+        r = 0.15
+    elif layout == "coincident":                 # stroke ends meeting exactly, in threes
+        base = rng.uniform(-40, 40, (100, 2))
+        xy = np.repeat(base, 3, axis=0)[rng.permutation(300)]
+        r = 1e-9
+    else:
+        g = np.arange(12) * 1.0
+        xy = np.array([(x, y) for x in g for y in g])
+        r = 1.0                                  # exactly one step: on the boundary, included
+    got = {tuple(p) for p in _close_pairs(xy, r).tolist()}
+    want = {tuple(sorted(p)) for p in cKDTree(xy).query_pairs(r=r, output_type="ndarray").tolist()}
+    assert got == want and len(want) > 0

@@ -86,15 +86,33 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
 
 
 def _close_pairs(xy: np.ndarray, r: float) -> np.ndarray:
-    """(m, 2) index pairs i < j of points within r: cKDTree.query_pairs (a distance matrix for
-    small sets)."""
-    if len(xy) > BRUTE_FORCE_POINTS:
+    """(m, 2) index pairs i < j of points within r: cKDTree.query_pairs's set of pairs (for
+    small sets: the points sorted along their wider axis, each compared with the next ones
+    until they lie more than r further along it)."""
+    xy = np.asarray(xy, dtype=np.float64)
+    n = len(xy)
+    if n > BRUTE_FORCE_POINTS:
         from scipy.spatial import cKDTree
 
         return cKDTree(xy).query_pairs(r=r, output_type="ndarray").reshape(-1, 2)
-    d2 = (xy[:, 0, None] - xy[None, :, 0]) ** 2 + (xy[:, 1, None] - xy[None, :, 1]) ** 2
-    i, j = np.nonzero(np.triu(d2 <= r * r, k=1))
-    return np.column_stack([i, j]).astype(np.int64)
+    if n < 2:
+        return np.zeros((0, 2), dtype=np.int64)
+    axis = int(np.ptp(xy[:, 1]) > np.ptp(xy[:, 0]))
+    o = np.argsort(xy[:, axis], kind="stable")
+    sx, sy = xy[o, 0], xy[o, 1]
+    along = sx if axis == 0 else sy
+    found = []
+    for s in range(1, n):
+        near = np.flatnonzero(along[s:] - along[:-s] <= r)
+        if len(near) == 0:
+            break
+        dx, dy = sx[near + s] - sx[near], sy[near + s] - sy[near]
+        near = near[dx * dx + dy * dy <= r * r]
+        found.append(np.column_stack([o[near], o[near + s]]))
+    if not found:
+        return np.zeros((0, 2), dtype=np.int64)
+    pairs = np.concatenate(found).astype(np.int64)
+    return np.sort(pairs, axis=1)
 
 
 def _components(n: int, pairs: np.ndarray) -> np.ndarray:
@@ -375,6 +393,8 @@ def merge_strokes(points, offsets, intensity, tol):
     if S == 0:
         return pts.copy(), offs.copy(), inten.copy(), []
     chains = _chains(pts, offs, inten, float(tol))
+    if len(chains) == S and not any(c[2] for c in chains):   # nothing joined: as given
+        return pts, offs, inten, [np.array(c[0], dtype=np.int64) for c in chains]
     return _joined(pts, offs, inten, chains)
 
 
@@ -1174,14 +1194,15 @@ def _chains(pts, offs, inten, tol):
     partner, so it stops at a free end or a junction of three or more."""
     S = len(offs) - 1
     counts = np.diff(offs)
-    step = np.hypot(*np.diff(pts, axis=0).T) if len(pts) > 1 else np.zeros(0)
-    inside = np.ones(len(step), dtype=bool)
-    inside[offs[1:-1] - 1] = False                  # the step from one stroke to the next
-    seg_stroke = np.searchsorted(offs, np.flatnonzero(inside), side="right") - 1
-    length = np.bincount(seg_stroke, weights=step[inside], minlength=S)
-    line = np.flatnonzero((counts >= 2) & (length > 0))        # dots are never joined
+    # a stroke has a length when any of its points differs from another (its extent > 0)
+    first = offs[:-1]
+    extent = np.zeros(S, dtype=bool)
+    for k in range(2):
+        c = pts[:, k]
+        extent |= np.maximum.reduceat(c, first) > np.minimum.reduceat(c, first)
+    line = np.flatnonzero((counts >= 2) & extent)             # dots are never joined
     singles = [([i], [False], False)
-               for i in np.flatnonzero((counts < 2) | (length <= 0)).tolist()]
+               for i in np.flatnonzero((counts < 2) | ~extent).tolist()]
     if len(line) == 0:
         return singles
     ends = np.empty((2 * len(line), 2))
