@@ -125,3 +125,25 @@ def test_a_drive_that_cannot_make_the_frame_is_refused_with_numbers():
     # the numbers, by hand: the peak volts are at least R i_peak = 10 * 2 * 27 / 50 = 10.8 V
     assert rep["amp_v_peak"][0] > 15.0 and rep["resistive_v_peak"][0] == pytest.approx(10.8,
                                                                                         rel=0.02)
+
+
+def test_a_filtering_chain_pads_the_frame_to_a_length_scipy_calls_fast():
+    # reference: scipy.fft.next_fast_len (the smallest 2-3-5-7-11-smooth length >= n, what
+    # the pocketfft transforms run fastest on); the frame divides by the lag's response over
+    # the whole loop, so its length decides the cost of that division
+    from scipy.fft import next_fast_len
+
+    from vectorgen.stages import fast_length
+
+    for n in list(range(1, 3000)) + [62561, 125122, 999983]:
+        assert fast_length(n) == next_fast_len(n), n
+    prof = make_profile(response={"tau_us": [TAU * 1e6] * 2})
+    frame = render(_card(), prof, rate=RATE)
+    n = len(frame.signal)
+    assert next_fast_len(n) == n
+    spot_err = _lit_error(frame, prof, LAG, _card())
+    assert spot_err < 0.3                    # the goal, still met with the padding
+    # the balancing excursion of an AC-coupled output takes up the padding in its settle
+    ac = make_profile(output={"highpass_hz": 10.0, "channels": 3})
+    balanced = render(_card(), ac, rate=RATE)
+    assert next_fast_len(len(balanced.signal)) == len(balanced.signal)

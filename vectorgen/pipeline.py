@@ -463,11 +463,13 @@ class Renderer:
         final = tp = None
         if self.balancing:
             plan, final, tp = self._balanced(plan, notes, extra)
-        elif self.profile.output.highpass_hz > 0:
-            shift = self._picture_shift(self.model.drive_from_xy(plan.x, plan.y))
-            extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(shift)}
-            notes.append(f"the AC-coupled output removes the frame's mean: the picture shifts by "
-                         f"({shift[0]:.2f}, {shift[1]:.2f}) mm (balancing is off)")
+        else:
+            plan = self._fft_friendly(plan)
+            if self.profile.output.highpass_hz > 0:
+                shift = self._picture_shift(self.model.drive_from_xy(plan.x, plan.y))
+                extra["balance"] = {"dwell_samples": 0, "picture_shift_mm": _r(shift)}
+                notes.append(f"the AC-coupled output removes the frame's mean: the picture "
+                             f"shifts by ({shift[0]:.2f}, {shift[1]:.2f}) mm (balancing is off)")
         signal, peak, drive, made_tp = plan_signal(plan, self.model, self.chain, self.cmap,
                                                    self.rate, self.checks_true_peak and tp is None,
                                                    final)
@@ -478,6 +480,25 @@ class Renderer:
                 notes.append(f"true peak {tp:.4f}: the interface clips {100 * (tp - 1):.2f} % of "
                              f"full scale between samples near the edge")
         return signal, peak, drive, plan
+
+    def _fft_pad(self, n: int) -> int:
+        """Blanked samples to add to a frame of n samples so that a filtering stage chain
+        divides it by its response on a fast FFT length (none when the chain is pointwise or
+        the frame length is fixed): at most a few tenths of a per cent of the frame."""
+        if self.chain.pointwise or self.target is not None:
+            return 0
+        from .stages import fast_length
+
+        return fast_length(n) - n
+
+    def _fft_friendly(self, plan):
+        """The plan held blanked at the frame's start for `_fft_pad` samples at its end (after
+        the jump back: a longer settle)."""
+        pad = self._fft_pad(plan.samples)
+        if not pad:
+            return plan
+        start = np.array(plan.positions(0, 1)).ravel()
+        return plan.with_tail(np.repeat(start[None], pad, axis=0))
 
     # -- frame time: the writing speed follows the refresh target ----------------------------
     @property
@@ -642,6 +663,9 @@ class Renderer:
             counts = [int(jumps.moves(mm(a[None]), mm(b[None]))[0]) or 1
                       for a, b in ((s0, p1), (p1, p2), (p2, s0))]
             coef = self._tail_coefficients(counts, m, settle)      # (L, 3): s0, p1, p2
+            pad = self._fft_pad(n + len(coef))
+            if pad:                     # a longer settle at s0: the frame on a fast FFT length
+                coef = self._tail_coefficients(counts, m, settle + pad)
             L = len(coef)
             t = n + np.arange(L, dtype=float)
             if M is None:

@@ -23,7 +23,7 @@ from .errors import ProfileError
 from .registry import Registry
 
 __all__ = ["Stage", "LinearStage", "Gain", "StageChain", "STAGES", "register_stage",
-           "periodic_apply"]
+           "periodic_apply", "fast_length"]
 
 
 class Stage:
@@ -91,6 +91,30 @@ def periodic_apply(x: np.ndarray, rate: int, response) -> np.ndarray:
     spec = np.fft.rfft(x, axis=0)
     spec *= response(np.fft.rfftfreq(n, 1.0 / rate))
     return np.fft.irfft(spec, n=n, axis=0)
+
+
+FAST_PRIMES = (2, 3, 5, 7, 11)
+
+
+def fast_length(n: int) -> int:
+    """The smallest length >= n whose prime factors are all 2, 3, 5, 7 or 11: an FFT of such a
+    length runs on the transform's fast radix passes (a length with a large prime factor,
+    such as 125122 = 2 x 62561, takes about 30 times longer).
+
+    Examples
+    --------
+    >>> fast_length(125122), fast_length(1024), fast_length(1)
+    (125440, 1024, 1)
+    """
+    m = max(int(n), 1)
+    while True:
+        r = m
+        for p in FAST_PRIMES:
+            while r % p == 0:
+                r //= p
+        if r == 1:
+            return m
+        m += 1
 
 
 class LinearStage(Stage):
