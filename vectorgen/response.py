@@ -34,7 +34,8 @@ import numpy as np
 from .errors import FullScaleError, InputError, ProfileError, VectorgenWarning
 from .stages import LinearStage, register_stage
 
-__all__ = ["Response", "LagCompensation", "fastest_jump", "fastest_jump_xy", "jump_samples",
+__all__ = ["Response", "LagCompensation", "fastest_jump", "fastest_jump_xy", "jump_paths",
+           "jump_paths_xy", "jump_samples",
            "speed_limit", "corner_dwell_samples", "Drive", "DEFAULT_EDGE_SAMPLES"]
 
 DEFAULT_EDGE_SAMPLES = 6
@@ -606,32 +607,73 @@ def fastest_jump(x0: float, x1: float, tau_s: float, drive_limit: float, rate: f
     (20, 0.03413, 0.5)
     """
     x0, x1, tau, limit = float(x0), float(x1), float(tau_s), float(drive_limit)
-    edge_s = _edge_s(edge_samples, rate)
-    _check_jump(x0, x1, limit, tol)
     count = int(jump_samples(x0, x1, tau, limit, rate, tol, edge_samples))
     if count == 0:
+        _check_jump(x0, x1, limit, tol)
         return np.empty(0), 0
-    if tau == 0:
-        return np.array([x1]), count
-    peak, hold, total = (float(a) for a in _jump_plan(x0, x1, tau, limit, tol, edge_s)[:3])
-    t = np.arange(1, count + 1) / float(rate)
-    x = np.full(count, x1)
+    x = jump_paths(np.array([x0]), np.array([x1]), tau, limit, rate, tol, edge_samples)
+    return x, count
+
+
+def jump_paths(x0, x1, tau_s, drive_limit, rate, tol,
+               edge_samples: int = DEFAULT_EDGE_SAMPLES, samples=None) -> np.ndarray:
+    """The spot paths of many fastest jumps on one axis (`fastest_jump`'s path for each),
+    one after another in one array.
+
+    Parameters
+    ----------
+    x0, x1 : (J,) array_like
+        Start and end of each jump (drive units).
+    tau_s, drive_limit : float or (J,) array_like
+    rate, tol, edge_samples
+        As for `jump_samples`.
+    samples : (J,) array_like of int, optional
+        Samples to give each jump (default: its own count). A longer jump holds x1 after it
+        arrives; a shorter one is cut.
+
+    Returns
+    -------
+    (sum of samples,) float64
+        Jump j's positions at t = 1 / rate, 2 / rate, ... after its start.
+    """
+    x0, x1, tau, limit = np.broadcast_arrays(*(np.atleast_1d(np.asarray(a, dtype=float))
+                                               for a in (x0, x1, tau_s, drive_limit)))
+    edge_s = _edge_s(edge_samples, rate)
+    _check_jump(x0, x1, limit, tol)
+    count = np.asarray(jump_samples(x0, x1, tau, limit, rate, tol, edge_samples),
+                       dtype=np.int64).reshape(x0.shape)
+    n = count if samples is None else np.broadcast_to(np.asarray(samples, dtype=np.int64),
+                                                      x0.shape)
+    J, N = len(x0), int(n.sum())
+    j = np.repeat(np.arange(J), n)
+    k = np.arange(N) - np.repeat(np.cumsum(n) - n, n)       # sample of its jump, from 0
+    x = x1[j]
+    peak, hold, total, moving, lag = _jump_plan(x0, x1, tau, limit, tol, edge_s)
+    live = np.flatnonzero(moving[j] & lag[j] & (k < count[j] - 1))   # the last is x1
+    if not live.size:
+        return x
+    jl = j[live]
+    t = (k[live] + 1) / float(rate)
+    tl, pl, hl, x0l, x1l = tau[jl], peak[jl], hold[jl], x0[jl], x1[jl]
+    safe = np.where(lag, tau, 1.0)
+    if edge_s > 0:
+        x_edge = x0 + (peak - x0) * _edge_response(np.full(J, edge_s), edge_s, safe)
+    else:
+        x_edge = x0.copy()
+    x_fall = peak + (x_edge - peak) * np.exp(-hold / safe)
+    v = x1l.copy()
+    held = (t > edge_s) & (t <= edge_s + hl)
+    v[held] = pl[held] + (x_edge[jl][held] - pl[held]) * np.exp(-(t[held] - edge_s) / tl[held])
     if edge_s > 0:
         rise = t <= edge_s
-        x[rise] = x0 + (peak - x0) * _edge_response(t[rise], edge_s, tau)
-        x_edge = x0 + (peak - x0) * float(_edge_response(np.array(edge_s), edge_s, tau))
-    else:
-        x_edge = x0
-    held = (t > edge_s) & (t <= edge_s + hold)
-    x[held] = peak + (x_edge - peak) * np.exp(-(t[held] - edge_s) / tau)
-    x_fall = peak + (x_edge - peak) * math.exp(-hold / tau)
-    if edge_s > 0:
-        fall = (t > edge_s + hold) & (t < total)
-        tf = t[fall] - edge_s - hold
-        ef = np.exp(-tf / tau)
-        x[fall] = x_fall * ef + peak * (1.0 - ef) + (x1 - peak) * _edge_response(tf, edge_s, tau)
-    x[-1] = x1      # the count rounds T up, so this sample is at or past the arrival
-    return x, count
+        v[rise] = x0l[rise] + (pl[rise] - x0l[rise]) * _edge_response(t[rise], edge_s, tl[rise])
+        fall = (t > edge_s + hl) & (t < total[jl])
+        tf = t[fall] - edge_s - hl[fall]
+        ef = np.exp(-tf / tl[fall])
+        v[fall] = (x_fall[jl][fall] * ef + pl[fall] * (1.0 - ef)
+                   + (x1l[fall] - pl[fall]) * _edge_response(tf, edge_s, tl[fall]))
+    x[live] = v
+    return x
 
 
 def fastest_jump_xy(p0, p1, tau_s, drive_limit, rate, tol,
@@ -649,17 +691,25 @@ def fastest_jump_xy(p0, p1, tau_s, drive_limit, rate, tol,
     >>> xy.shape, xy[-1].tolist()
     ((26, 2), [0.5, -0.1])
     """
+    p0, p1 = np.asarray(p0, dtype=float)[None], np.asarray(p1, dtype=float)[None]
+    return jump_paths_xy(p0, p1, tau_s, drive_limit, rate, tol, edge_samples)
+
+
+def jump_paths_xy(p0, p1, tau_s, drive_limit, rate, tol,
+                  edge_samples: int = DEFAULT_EDGE_SAMPLES, samples=None) -> np.ndarray:
+    """Many 2-D fastest jumps (`fastest_jump_xy` for each of the rows of p0 and p1, (J, 2)),
+    one after another: ``(sum of samples, 2)``. ``drive_limit``: one number, (2,) per axis or
+    (J, 1) per jump. ``samples`` (J,): each jump's length (default its count, the larger of
+    its axes'); a longer one holds p1, a shorter one is cut."""
     p0, p1 = np.asarray(p0, dtype=float), np.asarray(p1, dtype=float)
     tau = np.broadcast_to(np.asarray(tau_s, dtype=float), (2,))
-    limit = np.broadcast_to(np.asarray(drive_limit, dtype=float), (2,))
-    axes = [fastest_jump(p0[i], p1[i], tau[i], limit[i], rate, tol / math.sqrt(2.0),
-                         edge_samples)[0] for i in range(2)]
-    count = max(len(a) for a in axes)
-    out = np.empty((count, 2))
-    for i, a in enumerate(axes):
-        out[:len(a), i] = a
-        out[len(a):, i] = p1[i]
-    return out
+    limit = np.broadcast_to(np.asarray(drive_limit, dtype=float), (len(p0), 2))
+    tol_axis = tol / math.sqrt(2.0)
+    if samples is None:
+        samples = np.max([jump_samples(p0[:, i], p1[:, i], tau[i], limit[:, i], rate, tol_axis,
+                                       edge_samples) for i in range(2)], axis=0)
+    return np.column_stack([jump_paths(p0[:, i], p1[:, i], tau[i], limit[:, i], rate, tol_axis,
+                                       edge_samples, samples) for i in range(2)])
 
 
 # --- planner-facing timing: lit strokes and corners -------------------------------------------

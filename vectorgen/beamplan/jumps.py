@@ -209,24 +209,24 @@ class LagJumps(StraightJumps):
         return total if np.ndim(length_mm) else int(total[0])
 
     def path(self, jump_from, jump_to, move):
-        from ..response import fastest_jump_xy
+        from ..response import jump_paths_xy
 
-        out = []
-        a_all, b_all = self._drive(jump_from), self._drive(jump_to)
-        lims = self._limits(a_all, b_all)[:, 0] if len(a_all) else []
-        for a, b, n, pa, pb, lim in zip(a_all, b_all, move.tolist(), jump_from, jump_to, lims):
-            if n == 0:
-                continue
-            if self.response.order == 1:
-                tau = np.asarray(self.response.tau_s, dtype=float)
-                u = fastest_jump_xy(np.clip(a, -lim, lim), np.clip(b, -lim, lim), tau, lim,
-                                    self.rate, self.tol_fs)
-                if len(u) < n:
-                    u = np.vstack([u, np.repeat(u[-1:], n - len(u), axis=0)])
-                xy = self.model.drive_to_mm(u[:n])
-            else:
-                f = (1.0 - np.cos(np.pi * np.arange(1, n + 1) / n)) / 2.0
-                xy = pa + (pb - pa) * f[:, None]
-            xy[-1] = pb            # land exactly where the next stroke starts
-            out.append(xy)
-        return np.concatenate(out) if out else np.zeros((0, 2))
+        move = np.asarray(move, dtype=np.int64)
+        go = move > 0
+        pa, pb, n = np.asarray(jump_from)[go], np.asarray(jump_to)[go], move[go]
+        if not len(n):
+            return np.zeros((0, 2))
+        if self.response.order == 1:
+            a, b = self._drive(pa), self._drive(pb)
+            lim = self._limits(a, b)
+            tau = np.asarray(self.response.tau_s, dtype=float)
+            u = jump_paths_xy(np.clip(a, -lim, lim), np.clip(b, -lim, lim), tau, lim,
+                              self.rate, self.tol_fs, samples=n)
+            xy = self.model.drive_to_mm(u)
+        else:
+            j = np.repeat(np.arange(len(n)), n)
+            k = np.arange(int(n.sum())) - np.repeat(np.cumsum(n) - n, n)
+            f = (1.0 - np.cos(np.pi * (k + 1) / n[j])) / 2.0
+            xy = pa[j] + (pb - pa)[j] * f[:, None]
+        xy[np.cumsum(n) - 1] = pb          # land exactly where the next stroke starts
+        return xy
