@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 
 import shapes
 from render_helpers import make_profile, render, run_cli
-from shapes.basic import grid_positions
+from shapes.basic import grid_positions, grid_step
 from vectorgen.errors import VectorgenError
 from vectorgen.profile import Profile
 
@@ -23,33 +23,60 @@ SCREEN = Profile().screen
 # --- grid, crosshair, circle --------------------------------------------------------------------
 
 @pytest.mark.parametrize("step", [10.0, 7.5, 25.0])
-def test_grid_lines_sit_on_multiples_of_the_step(step):
+def test_grid_lines_sit_on_multiples_of_the_step_within_ninety_percent_of_the_area(step):
     g = shapes.grid(SCREEN, step)
     xs, ys = grid_positions(SCREEN, step)
-    # multiples of the step through the centre, every one inside the area, none missing
+    # multiples of the step through the centre, every one within 90 % of the 100 x 80 mm area
+    # (45 and 36 mm from the centre), none missing
     assert np.allclose(xs / step, np.round(xs / step)) and 0.0 in xs and 0.0 in ys
-    assert xs.max() <= 50 < xs.max() + step and ys.max() <= 40 < ys.max() + step
+    assert xs.max() <= 45 < xs.max() + step and ys.max() <= 36 < ys.max() + step
     np.testing.assert_array_equal(xs, -xs[::-1])
-    assert g.count == len(xs) + len(ys) + len(xs) * len(ys)        # lines + crossing dots
+    assert g.count == len(xs) + len(ys)             # lines only: no dots at the crossings
     frame = render(g)
     lit = frame.plan.points[frame.plan.lit]
     on_x = np.abs(lit[:, 0] / step - np.round(lit[:, 0] / step)) < 1e-9
     on_y = np.abs(lit[:, 1] / step - np.round(lit[:, 1] / step)) < 1e-9
     assert (on_x | on_y).all(), "a lit point off every grid line"
-    # every line spans the area: 11 x 80 mm + 9 x 100 mm for the 10 mm grid
-    assert frame.plan.drawn_length_mm == pytest.approx(len(xs) * 80 + len(ys) * 100, abs=1e-6)
+    # each line runs between the outermost lines across it, so the grid closes in a frame:
+    # for the 10 mm grid 9 x 60 mm + 7 x 80 mm (worked by hand)
+    assert frame.plan.drawn_length_mm == pytest.approx(
+        len(xs) * 2 * ys.max() + len(ys) * 2 * xs.max(), abs=1e-6)
+    if step == 10.0:
+        assert frame.plan.drawn_length_mm == pytest.approx(9 * 60 + 7 * 80, abs=1e-6)
+    # every crossing is drawn through: a lit sample lies within half the point spacing of it
+    gx, gy = np.meshgrid(xs, ys)
+    crossings = np.column_stack([gx.ravel(), gy.ravel()])
+    nearest = np.hypot(*(crossings[:, None, :] - lit[None, :, :]).transpose(2, 0, 1)).min(axis=1)
+    spacing = frame.report(Profile())["point_spacing_mm"]
+    assert nearest.max() <= spacing / 2 + 1e-9
 
 
-def test_grid_on_a_round_face_is_cut_to_chords():
+def test_the_default_grid_step_is_the_smallest_one_two_five_step_with_at_most_ten_cells():
+    """The 1-2-5 series of round steps (common practice, no source): the default step gives at
+    most 10 cells across the wider side of the grid's area (90 % of the usable area), and the
+    next smaller step of the series would give more."""
+    series = np.array([m * 10.0 ** k for k in range(-1, 4) for m in (1, 2, 5)])
+    for size in ((100.0, 80.0), (140.0, 105.0), (60.0, 200.0), (33.0, 33.0), (1000.0, 500.0)):
+        screen = make_profile(screen={"width_mm": size[0], "height_mm": size[1]}).screen
+        step = grid_step(screen)
+        span = 0.9 * max(size)
+        assert step in series and span / step <= 10 + 1e-9
+        assert span / series[series < step].max() > 10
+    assert grid_step(SCREEN) == 10.0           # the built-in screen: the command line's 10 mm
+    np.testing.assert_array_equal(shapes.grid(SCREEN).points, shapes.grid(SCREEN, 10.0).points)
+
+
+def test_grid_on_a_round_face_is_chords_of_a_circle_of_ninety_percent_of_its_radius():
     prof = make_profile(screen={"shape": "round", "diameter_mm": 70.0})
     frame = render(shapes.grid(prof.screen, 10.0), prof)
-    r = 35.0
+    r = 0.9 * 35.0
     assert np.hypot(*frame.plan.points.T).max() <= r * (1 + 1e-9)
+    assert frame.report(prof)["clipped_strokes"] == 0           # inside: nothing cut at the edge
     d = np.arange(-30.0, 31.0, 10.0)
-    # chord at distance d from the centre: 2 sqrt(r^2 - d^2) (textbook); the face is shapely's
-    # 1024-gon, so allow its tiny sagitta
+    # chord at distance d from the centre of a circle of radius r: 2 sqrt(r^2 - d^2) (textbook),
+    # on both axes
     expected = 2 * np.sum(2 * np.sqrt(r * r - d * d))
-    assert frame.plan.drawn_length_mm == pytest.approx(expected, rel=1e-4)
+    assert frame.plan.drawn_length_mm == pytest.approx(expected, rel=1e-9)
 
 
 def test_crosshair():
