@@ -27,11 +27,11 @@ def test_pattern_writes_a_signal_and_an_empty_sheet(tmp_path, capsys):
     out, sheet = tmp_path / "grid.wav", tmp_path / "grid.csv"
     assert main(["pattern", "grid", "-o", str(out), "--sheet", str(sheet), "--preview",
                  str(tmp_path / "grid.png")]) == 0
-    assert "63 targets" in capsys.readouterr().out
+    assert "49 targets" in capsys.readouterr().out          # the default 7 x 7
     with open(sheet, newline="") as fh:
         rows = list(csv.reader(fh))
     assert tuple(rows[0]) == COLUMNS
-    assert len(rows) == 1 + 63 and all(r[3] == r[4] == "" for r in rows[1:])
+    assert len(rows) == 1 + 49 and all(r[3] == r[4] == "" for r in rows[1:])
     # Reference reader: scipy.io.wavfile. The beam sits at every target's drive (float32).
     rate, sig = wavfile.read(out)
     assert rate == 48000 and sig.dtype == np.float32
@@ -75,6 +75,36 @@ def test_grid_targets_fill_the_usable_area_on_a_regular_drive_lattice():
     assert np.abs(pat.nominal_mm[:, 0]).max() <= 0.8 * w
     assert np.abs(pat.nominal_mm[:, 1]).max() <= 0.8 * h
     assert np.abs(pat.nominal_mm).max(axis=0).max() > 0.6 * h
+
+
+def point_counts(pattern) -> list:
+    return [len(pattern.strokes.stroke(i)) for i in range(pattern.strokes.count)]
+
+
+def test_grid_and_check_mark_their_targets_with_dots_and_box_and_circle_with_crosses():
+    prof = bench_profile()
+    for kind in ("grid", "check"):
+        pat = make_pattern(kind, prof)
+        # a dot is a one-point stroke: one per target, nothing else drawn
+        assert point_counts(pat) == [1] * len(pat.names) == [1] * 49, kind
+        crosses = make_pattern(kind, prof, mark="cross")              # still there when asked
+        assert crosses.strokes.count == 3 * 49 and max(point_counts(crosses)) > 1, kind
+    box = make_pattern("box", prof)
+    assert box.strokes.count == 3 * 5 and sorted(set(point_counts(box))) == [1, 9]
+    circle = make_pattern("circle", prof)
+    # the circle, eight ticks and the two arms of the centre cross: strokes, no dots
+    assert circle.strokes.count == 1 + 8 + 2 and min(point_counts(circle)) == 2
+    assert make_pattern("circle", prof, mark="dot").strokes.count == 1 + 9
+
+
+def test_a_pattern_report_that_cannot_be_written_is_refused_before_anything_is(tmp_path,
+                                                                              capsys):
+    before = snapshot(tmp_path)
+    assert main(["pattern", "grid", "-o", str(tmp_path / "g.wav"), "--sheet",
+                 str(tmp_path / "g.csv"), "--report", str(tmp_path / "g.txt")]) == 2
+    err = capsys.readouterr().err
+    assert ".json" in err and len(err.strip().splitlines()) == 1
+    assert snapshot(tmp_path) == before
 
 
 def test_box_has_the_centre_and_four_corners():

@@ -1,7 +1,7 @@
 """Commands `pattern`, `fit`, `check`, `anode` and `spots`: measure a tube once, correct every
 drawing, and measure what is left.
 
-    vectorgen pattern grid -o grid.wav --sheet grid.csv [--rows 7 --cols 9] [--profile T.toml]
+    vectorgen pattern grid -o grid.wav --sheet grid.csv [--rows 7 --cols 7] [--profile T.toml]
     vectorgen fit grid.csv -o tube.toml [--base T.toml] [--kv 8.0] [--deflection magnetic]
     vectorgen pattern check -o check.wav --sheet check.csv --profile tube.toml
     vectorgen check check.csv --tolerance-mm 0.5
@@ -51,7 +51,7 @@ def cmd_pattern(args) -> int:
     from calibration.patterns import SIGNAL_PATTERNS, make_pattern
     from calibration.sheet import write_sheet
 
-    from ..files import check_output_path
+    from ..files import check_output_path, transaction
     from ..pipeline import report_line
     from ..preview import phosphor_image, write_png
     from ..sinks import signal_extensions, write_signal
@@ -77,6 +77,7 @@ def cmd_pattern(args) -> int:
     _check_sheet_free(args.sheet, args.replace_sheet)
     if args.preview:
         check_output_path(args.preview, (".png",))
+    _check_report_path(args, [("--sheet", args.sheet)])
     _check_seconds(args.seconds)
     _check_finite(args.extent, "--extent")
     profile, renderer = load_setup(args)
@@ -89,19 +90,22 @@ def cmd_pattern(args) -> int:
     repeats = repeats_for(args.seconds, renderer.rate, frame.samples)
     device = _device_for(args, renderer) if args.play else None     # before any file is written
     kept = []
-    if args.output is not None:
-        kept.append(_keep_old(args.output))
-        write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
-                     frame.names, pcm16=args.pcm16)
     kind = "check" if args.kind == "check" else "fit"
     places = pat.nominal_mm if kind == "check" else pat.drive
-    backup = write_sheet(args.sheet, pat.names, places, kind=kind)
-    if args.preview:
-        kept.append(write_png(args.preview, phosphor_image(
-            frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
-            rate=renderer.rate, intensity=frame.plan.intensity)))
+    rep = frame.report(profile)
+    with transaction():                     # the signal, sheet, preview and report: all or none
+        if args.output is not None:
+            kept.append(_keep_old(args.output))
+            write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
+                         frame.names, pcm16=args.pcm16)
+        backup = write_sheet(args.sheet, pat.names, places, kind=kind)
+        if args.preview:
+            kept.append(write_png(args.preview, phosphor_image(
+                frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
+                rate=renderer.rate, intensity=frame.plan.intensity)))
+        _write_report(args, rep, repeats, frame.samples, renderer.rate, pattern=args.kind,
+                      targets=len(pat.names), sheet=args.sheet)
     if not args.quiet:
-        rep = frame.report(profile)
         print(report_line(rep) + (f"; wrote {repeats} frame(s) to {args.output}"
                                   if args.output is not None else ""))
         print(f"{args.kind} pattern: {len(pat.names)} targets; "
@@ -153,6 +157,32 @@ def _kept_text(backups) -> str:
     return f"; previous file(s) kept as {', '.join(kept)}" if kept else ""
 
 
+def _check_report_path(args, others=()) -> None:
+    """Before any work: --report is a .json file, and no two outputs (nor the profile) name
+    one file."""
+    from ..files import check_output_path, check_outputs
+
+    if args.report:
+        check_output_path(args.report, (".json",))
+    check_outputs([("-o", args.output), *others, ("--preview", args.preview),
+                   ("--report", args.report)], [("profile", args.profile)])
+
+
+def _write_report(args, rep: dict, repeats: int, frame_samples: int, rate: int,
+                  **about) -> None:
+    """--report: the frame report (`Frame.report`, or the same keys for a signal pattern) with
+    what the command wrote, as `render --report` writes it."""
+    if not args.report:
+        return
+    from ..files import atomic_write_bytes
+
+    rep = dict(rep, **about)
+    total = repeats * frame_samples
+    rep.update(frames=int(repeats), total_samples=int(total), duration_s=total / rate,
+               output=args.output, sample_format="int16" if args.pcm16 else "float32")
+    atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
+
+
 def _signal_pattern(args) -> int:
     """`pattern step` and `pattern ztiming`: no targets, so no sheet."""
     from ..files import check_output_path
@@ -170,6 +200,7 @@ def _signal_pattern(args) -> int:
         check_output_path(args.output, signal_extensions())
     if args.preview:
         check_output_path(args.preview, (".png",))
+    _check_report_path(args)
     _check_seconds(args.seconds)
     if args.kind == "step":
         return _step_pattern(args)
@@ -181,6 +212,7 @@ def _step_pattern(args) -> int:
 
     from calibration.patterns import step_signal
 
+    from ..files import transaction
     from ..sinks import write_signal
     from .render import load_setup, repeats_for
 
@@ -213,9 +245,18 @@ def _step_pattern(args) -> int:
     kept = []
     if args.output is not None:
         _check_size(repeats * step.signal.size)
-        kept.append(_keep_old(args.output))
-        write_signal(args.output, np.tile(step.signal, (repeats, 1)), rate, step.names,
-                     pcm16=args.pcm16)
+    n = len(step.signal)
+    # the step pattern has no beam plan: its report gives the same timing keys as a frame's
+    rep = {"sample_rate": rate, "samples_per_frame": n, "refresh_hz": round(rate / n, 6),
+           "frame_time_s": n / rate, "channels": step.names, "axis": args.axis,
+           "amplitude": amplitude, "half_period_samples": step.half_samples,
+           "profile": profile.source}
+    with transaction():                     # the signal and the report: both or neither
+        if args.output is not None:
+            kept.append(_keep_old(args.output))
+            write_signal(args.output, np.tile(step.signal, (repeats, 1)), rate, step.names,
+                         pcm16=args.pcm16)
+        _write_report(args, rep, repeats, n, rate, pattern="step")
     if not args.quiet:
         print("step pattern: " + "; ".join(step.notes)
               + (f"; wrote {repeats} period(s) to {args.output}" if args.output else "")
@@ -239,6 +280,7 @@ def _ztiming_pattern(args) -> int:
 
     from calibration.patterns import ztiming_strokes
 
+    from ..files import transaction
     from ..pipeline import report_line
     from ..preview import phosphor_image, write_png
     from ..sinks import write_signal
@@ -270,16 +312,20 @@ def _ztiming_pattern(args) -> int:
         _warn("the Z timing pattern needs the Z channel (--channels 3 or [output] channels = 3): "
               "without it every jump between the dashes is lit too")
     kept = []
-    if args.output is not None:
-        kept.append(_keep_old(args.output))
-        write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
-                     frame.names, pcm16=args.pcm16)
-    if args.preview:
-        kept.append(write_png(args.preview, phosphor_image(
-            frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
-            rate=renderer.rate, intensity=frame.plan.intensity)))
+    rep = frame.report(profile)
+    with transaction():                     # the signal, preview and report: all or none
+        if args.output is not None:
+            kept.append(_keep_old(args.output))
+            write_signal(args.output, np.tile(frame.signal, (repeats, 1)), renderer.rate,
+                         frame.names, pcm16=args.pcm16)
+        if args.preview:
+            kept.append(write_png(args.preview, phosphor_image(
+                frame.signal, profile, renderer.channels, frame.plan.lit, chain=renderer.chain,
+                rate=renderer.rate, intensity=frame.plan.intensity)))
+        _write_report(args, rep, repeats, frame.samples, renderer.rate, pattern="ztiming",
+                      tick_us=pat.tick_us)
     if not args.quiet:
-        print(report_line(frame.report(profile)) + (f"; wrote {repeats} frame(s) to "
+        print(report_line(rep) + (f"; wrote {repeats} frame(s) to "
                                                     f"{args.output}" if args.output else "")
               + _kept_text(kept))
         print(pat.text)
@@ -591,13 +637,18 @@ def register(sub) -> None:
                         "is refused")
     p.add_argument("--replace-sheet", action="store_true",
                    help="replace a sheet that holds measurements (it is kept as SHEET.csv.bakN)")
-    p.add_argument("--rows", type=int, default=7, help="grid and check rows (default 7)")
-    p.add_argument("--cols", type=int, default=9, help="grid and check columns (default 9)")
+    p.add_argument("--rows", type=int, default=7,
+                   help="grid and check rows (default 7: with 7 columns, 49 targets, which "
+                        "refresh at about 47 Hz at 48 kHz as dots and over-determine the full "
+                        "fit)")
+    p.add_argument("--cols", type=int, default=7, help="grid and check columns (default 7)")
     p.add_argument("--extent", type=float, default=0.9, metavar="FRACTION",
                    help="the targets fill this fraction of the usable area, judged with the "
                         "profile (default 0.9)")
-    p.add_argument("--mark", choices=("cross", "dot"), default="cross",
-                   help="mark each target with a small cross (default) or a dot")
+    p.add_argument("--mark", choices=("cross", "dot"), default=None,
+                   help="mark each target with a small cross or a dot (default: dots for grid "
+                        "and check, whose many crosses would flicker; crosses for box and "
+                        "circle)")
     p.add_argument("--axis", choices=("x", "y"), default=None,
                    help="step: the axis that jumps (the other is held at 0)")
     p.add_argument("--amplitude", type=float, default=0.5, metavar="FRACTION",
@@ -609,6 +660,9 @@ def register(sub) -> None:
                    help="repeat frames to this duration; with --play, stop after it")
     p.add_argument("--pcm16", action="store_true", help="16-bit integer samples")
     p.add_argument("--preview", metavar="FILE.png", help="also write a phosphor preview")
+    p.add_argument("--report", metavar="FILE.json",
+                   help="also write the frame report as JSON (sample_rate, samples_per_frame, "
+                        "refresh_hz and more, as `render --report`)")
     p.add_argument("-q", "--quiet", action="store_true")
     add_output_arguments(p)
     p.set_defaults(func=cmd_pattern)
