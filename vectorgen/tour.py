@@ -64,6 +64,7 @@ MAX_SEGMENT = 3                 # longest run of strokes an Or-opt move carries
 # Up to this many points, neighbours come from a distance matrix rather than a KD-tree: the
 # same neighbours, and a small drawing does not pay for importing scipy.spatial (about 0.5 s).
 BRUTE_FORCE_POINTS = 1500
+KNN_QUERIES_PER_PASS = 64
 
 
 def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
@@ -75,14 +76,23 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
 
         d, j = cKDTree(xy).query(queries, k=k, workers=workers)
         return np.asarray(d).reshape(len(queries), k), np.asarray(j).reshape(len(queries), k)
-    d2 = (queries[:, 0, None] - xy[None, :, 0]) ** 2 + (queries[:, 1, None] - xy[None, :, 1]) ** 2
-    if k < len(xy):
-        j = np.argpartition(d2, k - 1, axis=1)[:, :k]
-    else:
-        j = np.broadcast_to(np.arange(len(xy)), (len(queries), len(xy))).copy()
-    dd = np.take_along_axis(d2, j, axis=1)
-    o = np.lexsort((j, dd), axis=1)                # by distance, then index (as the tree does)
-    return np.sqrt(np.take_along_axis(dd, o, axis=1)), np.take_along_axis(j, o, axis=1)
+    kk = min(k, len(xy))
+    dist = np.empty((len(queries), kk))
+    near = np.empty((len(queries), kk), dtype=np.int64)
+    # a few dozen queries at a time: the distance block stays small enough to be reused
+    # instead of fresh memory (a page fault per 4 KiB) for every call
+    for a in range(0, len(queries), KNN_QUERIES_PER_PASS):
+        q = queries[a:a + KNN_QUERIES_PER_PASS]
+        d2 = (q[:, 0, None] - xy[None, :, 0]) ** 2 + (q[:, 1, None] - xy[None, :, 1]) ** 2
+        if k < len(xy):
+            j = np.argpartition(d2, k - 1, axis=1)[:, :k]
+        else:
+            j = np.broadcast_to(np.arange(len(xy)), (len(q), len(xy))).copy()
+        dd = np.take_along_axis(d2, j, axis=1)
+        o = np.lexsort((j, dd), axis=1)            # by distance, then index (as the tree does)
+        dist[a:a + len(q)] = np.sqrt(np.take_along_axis(dd, o, axis=1))
+        near[a:a + len(q)] = np.take_along_axis(j, o, axis=1)
+    return dist, near
 
 
 def _close_pairs(xy: np.ndarray, r: float) -> np.ndarray:
