@@ -24,8 +24,9 @@ ellipse), `concat_tables` joins tables, `table_bounds` gives their bounding box.
 
 from __future__ import annotations
 
-__all__ = ["PathTable", "arc_centre_form", "concat_tables", "parse_path_data",
-           "parse_path_list", "table_bounds", "transform_table"]
+__all__ = ["PathTable", "arc_centre_form", "concat_tables", "hull_points", "parse_path_data",
+           "parse_path_list", "read_path_list", "select_paths", "select_runs", "table_bounds",
+           "transform_table"]
 
 import numpy as np
 
@@ -175,7 +176,169 @@ def parse_path_list(ds, wheres=None) -> PathTable:
                          f"{len(wheres)})", parameter="wheres")
     if not any(ds):
         return PathTable.empty(len(ds))
-    return _Reader(ds, wheres).table()
+    try:
+        return _Reader(ds).table()
+    except _Fault as fault:
+        where = wheres[fault.index] if wheres is not None else f"path {fault.index + 1}"
+        raise InputError(f"{where}: {fault.reason}") from None
+
+
+def read_path_list(ds) -> tuple[PathTable, dict]:
+    """The segments of many path data strings, read in one pass, with the strings that are
+    not path data set aside instead of raising (see `parse_path_data`).
+
+    Parameters
+    ----------
+    ds : sequence of str
+
+    Returns
+    -------
+    table : PathTable
+        The runs of every string that reads; a string set aside has none.
+    faults : dict
+        For each string set aside, its index -> the reason, one line saying the character
+        (counted from 1 in that string) and what is wrong there.
+
+    Notes
+    -----
+    A document may hold path data that is never drawn (in ``<defs>``, under ``display:
+    none``), where a fault is no error; so every string of a document is read at once and
+    a fault is only reported for the element that is drawn. A batch with a fault is split
+    round the string at fault and its parts read again: k faults cost about 2 k + 2 passes
+    over shorter and shorter parts.
+
+    Examples
+    --------
+    >>> t, faults = read_path_list(["M0 0 L1 1", "M 0 0 L 10 x", "m2 2 h1"])
+    >>> t.run_owner.tolist(), faults
+    ([0, 2], {1: "path data not understood at character 12: 'x' is not part of the path \
+syntax (near 'M 0 0 L 10 x')"})
+    """
+    ds = ["" if d.strip() == "none" else d for d in ds]
+    faults: dict = {}
+
+    def sweep(lo: int, hi: int) -> None:
+        part = ds[lo:hi]
+        if not any(part):
+            return
+        try:
+            _Reader(part).table()
+        except _Fault as fault:
+            at = lo + fault.index
+            faults[at] = fault.reason
+            sweep(lo, at)
+            mid = (at + 1 + hi) // 2
+            sweep(at + 1, mid)
+            sweep(mid, hi)
+
+    try:
+        return (_Reader(ds).table() if any(ds) else PathTable.empty(len(ds))), faults
+    except _Fault:
+        sweep(0, len(ds))
+    kept = ["" if i in faults else d for i, d in enumerate(ds)]
+    return (_Reader(kept).table() if any(kept) else PathTable.empty(len(ds))), faults
+
+
+def select_runs(table: PathTable, runs, run_owner=None, paths=None) -> PathTable:
+    """The table of some of a table's runs, in the order given (a run may come more than
+    once).
+
+    Parameters
+    ----------
+    table : PathTable
+    runs : array_like of int
+        Indices of the runs to take.
+    run_owner : array_like of int, optional
+        The owner of each run taken (default: its owner in `table`).
+    paths : int, optional
+        How many owners the new table counts (default: as `table`).
+
+    Returns
+    -------
+    PathTable
+
+    Examples
+    --------
+    >>> t = parse_path_list(["M0 0 L1 1", "M5 5 Q 6 6 7 5 Z"])
+    >>> u = select_runs(t, [1, 0, 1])
+    >>> u.kinds.tolist(), u.run_owner.tolist(), u.closed.tolist()
+    ([2, 1, 1, 2, 1], [1, 0, 1], [True, False, True])
+    """
+    runs = np.asarray(runs, dtype=np.int64).reshape(-1)
+    run_len = np.asarray(table.run_len, dtype=np.int64)
+    kinds = np.asarray(table.kinds, dtype=np.int8)
+    first = np.cumsum(run_len) - run_len
+    new_len = run_len[runs]
+    n = int(new_len.sum())
+    head = np.cumsum(new_len) - new_len
+    segs = np.repeat(first[runs] - head, new_len) + np.arange(n)
+    new_kinds = kinds[segs]
+    data = {}
+    for k, rows in table.data.items():
+        if len(rows):
+            rank = np.cumsum(kinds == k) - 1            # each segment's row among its kind
+            rows_taken = rank[segs[new_kinds == k]]
+            if len(rows_taken):
+                data[k] = rows[rows_taken]
+    owner = table.run_owner[runs] if run_owner is None else np.asarray(run_owner,
+                                                                        dtype=np.int64)
+    return PathTable(new_len, new_kinds, data, np.asarray(table.starts)[runs],
+                     np.asarray(table.closed)[runs], owner,
+                     table.paths if paths is None else paths)
+
+
+def select_paths(table: PathTable, which) -> PathTable:
+    """The runs of some of a table's path strings, in the order given (a string may come
+    more than once); each run's owner becomes the place of its string in `which`.
+
+    Parameters
+    ----------
+    table : PathTable
+    which : array_like of int
+        Indices of path strings of `table` (its owners).
+
+    Returns
+    -------
+    PathTable
+        ``paths`` is ``len(which)``.
+
+    Examples
+    --------
+    >>> t = parse_path_list(["M0 0 L1 1", "", "M5 5 h1 m1 1 v1"])
+    >>> u = select_paths(t, [2, 0])
+    >>> u.run_owner.tolist(), u.run_len.tolist(), u.paths
+    ([0, 0, 1], [1, 1, 1], 2)
+    """
+    which = np.asarray(which, dtype=np.int64).reshape(-1)
+    owner = np.asarray(table.run_owner, dtype=np.int64)
+    if len(which) == table.paths and np.array_equal(which, np.arange(table.paths)):
+        return table
+    lo = np.searchsorted(owner, which, side="left")       # owners are in order
+    count = np.searchsorted(owner, which, side="right") - lo
+    total = int(count.sum())
+    head = np.cumsum(count) - count
+    runs = np.repeat(lo - head, count) + np.arange(total)
+    return select_runs(table, runs, np.repeat(np.arange(len(which)), count), len(which))
+
+
+def hull_points(table: SegmentTable) -> np.ndarray:
+    """Points whose bounding box holds every segment of a table (complex): run starts,
+    control and end points of lines and Beziers, and arc ends with those extremes of their
+    ellipses that lie on their sweep (see `table_bounds`).
+
+    Examples
+    --------
+    >>> hull_points(parse_path_data("M1 0 A1 1 0 0 1 -1 0")).round(12).tolist()
+    [(1+0j), (-1+0j), (1+0j), 1j, (-1+0j)]
+    """
+    parts = [np.asarray(table.starts, dtype=complex)]
+    parts += [table.data[k].ravel() for k in (1, 2, 3) if k in table.data]
+    if 4 in table.data and len(table.data[4]):
+        a = table.data[4]
+        parts.append(a[:, 6])
+        parts.append(_arc_extremes(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real,
+                                   a[:, 4].real, a[:, 5].real))
+    return np.concatenate(parts)
 
 
 def arc_centre_form(start, end, rx, ry, rotation_deg, large_arc, sweep):
@@ -317,7 +480,8 @@ def transform_table(table: SegmentTable, matrix, run_map=None) -> PathTable:
     Raises
     ------
     InputError
-        A matrix of the wrong shape or with non-finite entries, or `run_map` not matching.
+        A matrix of the wrong shape, or `run_map` not matching. (A map with non-finite
+        entries gives non-finite points, for the caller's checks on coordinates to catch.)
 
     Notes
     -----
@@ -325,8 +489,9 @@ def transform_table(table: SegmentTable, matrix, run_map=None) -> PathTable:
     K = A R(phi) diag(rx, ry); with the singular value decomposition K = U S V^T (U made a
     rotation) its image is A c + b + R(phi') diag(s1, s2) (cos t', sin t'), phi' the angle of
     U's first column: t' = t - beta when V = R(beta) (det A > 0), t' = beta - t, the sweep
-    reversed, when V = R(beta) diag(1, -1) (det A < 0). Under a map of rank < 2 an arc
-    becomes the line between its mapped end points.
+    reversed, when V = R(beta) diag(1, -1) (det A < 0). An arc whose image is flat (s2 at
+    most 1e-12 s1, as under a map of rank < 2) becomes the line between its mapped end
+    points.
 
     Examples
     --------
@@ -361,8 +526,7 @@ def transform_table(table: SegmentTable, matrix, run_map=None) -> PathTable:
     if 4 in table.data and len(table.data[4]):
         arc_seg = np.flatnonzero(kinds == 4)
         arc_mat = seg_mat[arc_seg]
-        flat = _degenerate(mats)[arc_mat]
-        arcs = _map_arcs(table.data[4], mats, arc_mat)
+        arcs, flat = _map_arcs(table.data[4], mats, arc_mat)
         if flat.any():
             seg_start = _segment_starts(table)
             line_rows = np.column_stack([_map_points(seg_start[arc_seg[flat]], mats,
@@ -405,26 +569,26 @@ def table_bounds(table: SegmentTable):
     """
     if not len(table.kinds):
         return None
-    parts = [np.asarray(table.starts, dtype=complex)]
-    parts += [table.data[k].ravel() for k in (1, 2, 3) if k in table.data]
-    if 4 in table.data and len(table.data[4]):
-        a = table.data[4]
-        parts.append(a[:, 6])
-        parts.append(_arc_extremes(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real,
-                                   a[:, 4].real, a[:, 5].real))
-    z = np.concatenate(parts)
+    z = hull_points(table)
     return (float(z.real.min()), float(z.imag.min()), float(z.real.max()),
             float(z.imag.max()))
 
 
 # --- reading ---------------------------------------------------------------------------------
 
+class _Fault(Exception):
+    """Text outside the path grammar: the string's index in its batch and the reason."""
+
+    def __init__(self, index: int, reason: str):
+        super().__init__(reason)
+        self.index, self.reason = index, reason
+
+
 class _Reader:
     """One pass over many path strings joined into one text, each opened by a start mark."""
 
-    def __init__(self, ds: list, wheres):
+    def __init__(self, ds: list):
         self.ds = ds
-        self.wheres = wheres
         lens = np.fromiter((len(d) for d in ds), dtype=np.int64, count=len(ds))
         self.offsets = np.cumsum(lens + 1) - (lens + 1)      # each path's start mark
         text = "\x00" + "\x00".join(ds)
@@ -445,11 +609,9 @@ class _Reader:
     def _fail(self, pos: int, reason: str):
         i = int(np.searchsorted(self.offsets, pos, side="right")) - 1
         local = int(pos - self.offsets[i] - 1)
-        d = self.ds[i]
-        where = self.wheres[i] if self.wheres is not None else f"path {i + 1}"
-        near = d[max(0, local - 12):local + 12]
-        raise InputError(f"{where}: path data not understood at character {local + 1}: "
-                         f"{reason} (near {near!r})")
+        near = self.ds[i][max(0, local - 12):local + 12]
+        raise _Fault(i, f"path data not understood at character {local + 1}: {reason} "
+                        f"(near {near!r})")
 
     def _first(self, problems: list):
         """Raise the problem (position, reason) earliest in the text, if any."""
@@ -917,9 +1079,6 @@ def _affine_stack(matrix) -> np.ndarray:
     else:
         raise InputError(f"an affine map is a 3 x 3 or 2 x 3 matrix or six numbers "
                          f"(matrix of shape {m.shape})", parameter="matrix")
-    if not np.isfinite(rows).all():
-        raise InputError("an affine map must have finite entries (matrix has "
-                         f"{rows[~np.isfinite(rows)][0]})", parameter="matrix")
     return rows
 
 
@@ -931,17 +1090,10 @@ def _map_points(z, mats, which) -> np.ndarray:
     return (a * x + c * y + e) + 1j * (b * x + d * y + f)
 
 
-def _degenerate(mats) -> np.ndarray:
-    """Maps of rank < 2: the smaller singular value of A below 1e-12 of the larger."""
-    a = np.stack([np.stack([mats[:, 0], mats[:, 2]], -1), np.stack([mats[:, 1], mats[:, 3]],
-                                                                    -1)], -2)
-    sv = np.linalg.svd(a, compute_uv=False)
-    return sv[:, 1] <= 1e-12 * sv[:, 0]
-
-
 def _map_arcs(rows, mats, which) -> np.ndarray:
     """Arc rows (centre, rx, ry, rot, theta, delta, end) through their maps (see
-    `transform_table`); rows of degenerate maps come out meaningless but finite."""
+    `transform_table`), and a mask of the arcs whose image is flat (their rows come out
+    meaningless but finite)."""
     centre, end = rows[:, 0], rows[:, 6]
     rx, ry, rot = rows[:, 1].real, rows[:, 2].real, rows[:, 3].real
     theta, delta = rows[:, 4].real, rows[:, 5].real
@@ -958,8 +1110,9 @@ def _map_arcs(rows, mats, which) -> np.ndarray:
     mirrored = np.linalg.det(vt) < 0
     new_theta = np.where(mirrored, beta - theta, theta - beta)
     new_delta = np.where(mirrored, -delta, delta)
+    flat = s[:, 1] <= 1e-12 * np.maximum(s[:, 0], 1e-300)
     return np.column_stack([_map_points(centre, mats, which), s[:, 0], s[:, 1], new_rot,
-                            new_theta, new_delta, _map_points(end, mats, which)])
+                            new_theta, new_delta, _map_points(end, mats, which)]), flat
 
 
 def _segment_ends(table) -> np.ndarray:

@@ -33,11 +33,13 @@ import re
 import warnings
 from dataclasses import dataclass, field
 
+import numpy as np
+
 from .errors import InputError, VectorgenWarning
 from .files import read_bytes
+from .pathdata import PathTable, read_path_list
 from .svgcss import INHERITED, PROPERTIES, Cascade, Declared
-from .svgpathdata import (PathData, ellipse_path, line_path, parse_path_data, points_path,
-                          rect_path)
+from .svgpathdata import PathData, ellipse_path, line_path, points_path, rect_path
 from .svgvalues import (FONT_SIZE_KEYWORDS, IDENTITY, BadValue, Viewport, compose, is_singular,
                         parse_aspect, parse_length, parse_length_list, parse_number,
                         parse_number_list, parse_transform, parse_viewbox, resolve_length,
@@ -46,7 +48,8 @@ from .svgxml import (SVG_NS, XLINK_NS, XML_NS, SvgTree, element_label, element_n
                      parse_svg_bytes)
 
 __all__ = ["BoxRef", "ClipItem", "ClipNode", "Dash", "Document", "MAX_INSTANCES",
-           "MAX_SVG_BYTES", "Shape", "TextBlock", "TextRun", "read_document", "resolve"]
+           "MAX_SVG_BYTES", "PathRef", "Shape", "TextBlock", "TextRun", "read_document",
+           "resolve"]
 
 MAX_SVG_BYTES = 64 * 1024 * 1024
 MAX_INSTANCES = 1_000_000       # elements drawn, <use> copies counted: a guard against bombs
@@ -67,6 +70,17 @@ NOT_DRAWN = frozenset({"image", "foreignObject", "video", "audio", "iframe", "ca
 ANIMATION = frozenset({"animate", "set", "animateMotion", "animateTransform", "animateColor",
                        "discard"})
 _URL = re.compile(r"""^url\(\s*(['"]?)([^'")]*)\1\s*\)(?:\s+(.*))?$""", re.S)
+
+
+class PathRef:
+    """The segments of a ``<path>`` element: path string `index` of the document's path
+    table (`vectorgen.pathdata.PathTable`, every ``d`` of the document read in one pass),
+    which has `segments` segments."""
+
+    __slots__ = ("table", "index", "segments")
+
+    def __init__(self, table: PathTable, index: int, segments: int):
+        self.table, self.index, self.segments = table, index, segments
 
 
 @dataclass(eq=False)
@@ -99,7 +113,7 @@ class ClipItem:
     `matrix` into the root's user space, or into the box's unit square when the node has a
     box; restricted by `clips` (a clip-path on the shape itself)."""
 
-    path: PathData
+    path: PathData | PathRef
     matrix: tuple
     rule: str
     clips: tuple = ()
@@ -120,7 +134,7 @@ class ClipNode:
 class Shape:
     """A drawable shape: segments in its own user units and everything needed to draw it."""
 
-    path: PathData
+    path: PathData | PathRef
     matrix: tuple               # the shape's user space -> the root's user space
     intensity: float            # 0 < intensity <= 1
     dash: Dash | None
@@ -265,10 +279,18 @@ class _Walker:
         self.ids: dict = {}
         sheets = []
         mentioned: set = set()          # dash and marker properties anywhere in the file?
+        path_tag = f"{_SVG}path"
+        self._path_index: dict = {}     # <path> element -> its place among the path strings
+        path_data: list = []
         for el in self.root.iter():
             ident = el.get("id")
             if ident is not None and ident not in self.ids:
                 self.ids[ident] = el
+            if el.tag == path_tag:
+                d = el.get("d")
+                if d is not None:
+                    self._path_index[el] = len(path_data)
+                    path_data.append(d)
             if el.tag == f"{_SVG}style" and (el.get("type") or "text/css").strip() in (
                     "text/css", ""):
                 sheets.append("".join(el.itertext()))
@@ -293,6 +315,10 @@ class _Walker:
         self.instances = 0
         self.skipped: dict = {}
         self.families: set = set()
+        self._path_data = path_data
+        self._path_table: PathTable | None = None
+        self._path_faults: dict = {}
+        self._path_segments: list = []
 
     # --- messages ------------------------------------------------------------------------
 
@@ -723,13 +749,14 @@ class _Walker:
         """The element's segments in its user units (None: it draws nothing)."""
         L = self._length
         if name == "path":
-            raw = el.get("d")
-            if raw is None:
+            i = self._path_index.get(el)
+            if i is None:
                 return None
-            try:
-                return parse_path_data(raw)
-            except BadValue as exc:
-                raise self._bad(el, "d", _short(raw), exc) from None
+            table = self._paths()
+            fault = self._path_faults.get(i)
+            if fault is not None:
+                raise self._bad(el, "d", _short(self._path_data[i]), fault)
+            return PathRef(table, i, self._path_segments[i])
         if name == "rect":
             x, y = L(el, "x", vp, "x", 0.0), L(el, "y", vp, "y", 0.0)
             w, h = L(el, "width", vp, "x", 0.0), L(el, "height", vp, "y", 0.0)
@@ -774,6 +801,17 @@ class _Walker:
                        "last one is left out")
             values = values[:-1]
         return points_path(values, closed=name == "polygon")
+
+    def _paths(self) -> PathTable:
+        """Every ``d`` of the document, read in one pass the first time a path is drawn
+        (path data that is never drawn is read too: its faults are no error)."""
+        if self._path_table is None:
+            table, self._path_faults = read_path_list(self._path_data)
+            counts = np.bincount(table.run_owner, weights=table.run_len,
+                                 minlength=len(self._path_data))
+            self._path_segments = counts.astype(np.int64).tolist()
+            self._path_table = table
+        return self._path_table
 
     def _positive(self, el, *pairs) -> bool:
         for attr, value in pairs:

@@ -1,35 +1,23 @@
-"""SVG geometry as plain segment lists: path data parsed by the SVG path grammar, and the basic
-shapes (rect, circle, ellipse, line, polyline, polygon) as the paths the specification says they
-are.
+"""The basic shapes (rect, circle, ellipse, line, polyline, polygon) as the paths the
+specification says they are, as plain segment lists; path data itself is read by
+`vectorgen.pathdata`.
 
 A `PathData` holds the segments of one element, in user units of that element, grouped into
 continuous sub-paths ("runs"). Segment kinds: 1 line (start, end), 2 quadratic Bezier
 (start, control, end), 3 cubic Bezier (start, c1, c2, end), all as complex numbers x + iy, and
-4 elliptical arc in the path data's own endpoint form (start, end, rx, ry, x-axis rotation in
-degrees, large-arc flag, sweep flag). The geometry stage converts arcs to centre form, maps
-everything through the element's transform and flattens the lot in vectorised calls.
+4 elliptical arc in endpoint form (start, end, rx, ry, x-axis rotation in degrees, large-arc
+flag, sweep flag). `tables_of` turns many of them into one `vectorgen.pathdata.PathTable`
+(arcs in centre form), for the geometry stage to map and flatten in vectorised calls.
 """
 
 from __future__ import annotations
 
-import math
-import re
+import numpy as np
 
-from .svgvalues import BadValue
+from .pathdata import PathTable, arc_centre_form
 
-__all__ = ["PathData", "circle_path", "ellipse_path", "line_path", "parse_path_data",
-           "points_path", "rect_path"]
-
-# Characters the SVG path grammar allows (SVG 1.1, 8.3.9): command letters, numbers, separators.
-_BAD_CHAR = re.compile(r"[^MmZzLlHhVvCcSsQqTtAa0-9eE+\-.,\s]")
-_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
-_NUMS = re.compile(_NUM)
-_ARGS_OK = re.compile(rf"\s*(?:{_NUM}(?:\s*,?\s*{_NUM})*)?\s*")
-_COMMAND = re.compile(r"([MmZzLlHhVvCcSsQqTtAa])([^MmZzLlHhVvCcSsQqTtAa]*)")
-_SEP = r"\s*,?\s*"
-_ARC_ARGS = re.compile(rf"\s*,?\s*({_NUM}){_SEP}({_NUM}){_SEP}({_NUM}){_SEP}([01]){_SEP}([01])"
-                       rf"{_SEP}({_NUM}){_SEP}({_NUM})\s*")
-_ARITY = {"l": 2, "h": 1, "v": 1, "c": 6, "s": 4, "q": 4, "t": 2, "m": 2}
+__all__ = ["PathData", "circle_path", "ellipse_path", "line_path", "points_path", "rect_path",
+           "tables_of"]
 
 
 class PathData:
@@ -50,9 +38,9 @@ class PathData:
 
     Examples
     --------
-    >>> p = parse_path_data("M 0 0 L 10 0 L 10 10 Z M 20 0 h 5")
+    >>> p = rect_path(0, 0, 10, 5, 0, 0)
     >>> p.run_len, p.closed, p.kinds
-    ([3, 1], [True, False], [1, 1, 1, 1])
+    ([4], [True], [1, 1, 1, 1])
     """
 
     __slots__ = ("kinds", "rows", "run_len", "starts", "closed")
@@ -83,258 +71,6 @@ class PathData:
             self.run_len.pop()
             self.starts.pop()
             self.closed.pop()
-
-
-def parse_path_data(d: str) -> PathData:
-    """The segments of SVG path data (the ``d`` attribute), absolute and relative.
-
-    Notes
-    -----
-    SVG 1.1, 8.3: M/m (later pairs are implicit L/l), Z/z (a line back to the sub-path's start
-    when it is elsewhere; a command after it starts at that start), L H V C S Q T A; S and T
-    reflect the previous control point about the current point when the previous command was
-    of their kind (C/S, Q/T), else use the current point. Arcs, SVG 1.1 F.6.2: equal end
-    points omit the segment; a zero radius makes it a line; radii are taken as absolute values.
-    Anything outside the grammar raises `BadValue` saying where.
-
-    Examples
-    --------
-    >>> p = parse_path_data("M10,10 q 5 -5 10 0 t 10 0")
-    >>> p.rows[2]
-    [((10+10j), (15+5j), (20+10j)), ((20+10j), (25+15j), (30+10j))]
-    >>> parse_path_data("M 0 0 a 5 5 0 1010 0").rows[4]          # flags written together
-    [(0j, (10+0j), 5.0, 5.0, 0.0, 1, 0)]
-    """
-    m = _BAD_CHAR.search(d)
-    if m:
-        raise BadValue(f"{m.group()!r} at character {m.start() + 1}, which SVG path syntax does "
-                       "not allow")
-    if not d.strip() or d.strip() == "none":
-        return PathData()
-    commands = _commands_fast(d)
-    if commands is None:
-        commands = _commands_exact(d)
-    return _build(commands)
-
-
-class _Slow(Exception):
-    """The quick reading cannot decide: read again command by command."""
-
-
-_LETTERS = frozenset("MmZzLlHhVvCcSsQqTtAa")
-_POSSESSIVE_NUM = r"[+-]?+(?:\d++\.?+\d*+|\.\d++)(?:[eE][+-]?+\d++)?+"
-_SPLIT = re.compile(r"([MmZzLlHhVvCcSsQqTtAa])")
-# The whole string is letters and numbers with separators between (possessive: no backtracking,
-# whatever the input).
-_ALL_TOKENS = re.compile(rf"(?:[\s,]*+(?:[MmZzLlHhVvCcSsQqTtAa]|{_POSSESSIVE_NUM}))*+[\s,]*+")
-
-
-def _commands_fast(d: str):
-    """(letter, groups of numbers) for each command: the whole string checked by one pattern,
-    split at its command letters, each command's numbers read at once; None when anything
-    needs the exact reading (its messages say where)."""
-    if not _ALL_TOKENS.fullmatch(d):
-        return None
-    parts = _SPLIT.split(d)
-    if parts[0].strip(" \t\r\n,") or len(parts) < 3 or parts[1] not in "Mm":
-        return None
-    out = []
-    findall = _NUMS.findall
-    for i in range(1, len(parts), 2):
-        letter, args = parts[i], parts[i + 1]
-        low = letter.lower()
-        if low == "z":
-            if args.strip(" \t\r\n,"):
-                return None
-            out.append((letter, ()))
-            continue
-        toks = findall(args)
-        k = 7 if low == "a" else _ARITY[low]
-        if not toks or len(toks) % k:
-            return None
-        nums = list(map(float, toks))
-        if not math.isfinite(sum(nums)):        # 1e999: the exact reading says which
-            return None
-        if k == 2:
-            out.append((letter, list(zip(nums[0::2], nums[1::2]))))
-        elif low == "a":
-            if any(f not in ("0", "1") for f in toks[3::7] + toks[4::7]):
-                return None                     # flags written together: read exactly
-            out.append((letter, [(nums[q], nums[q + 1], nums[q + 2], int(nums[q + 3]),
-                                  int(nums[q + 4]), nums[q + 5], nums[q + 6])
-                                 for q in range(0, len(nums), 7)]))
-        elif k == 1:
-            out.append((letter, [(v,) for v in nums]))
-        else:
-            out.append((letter, [nums[q:q + k] for q in range(0, len(nums), k)]))
-    return out
-
-
-def _commands_exact(d: str) -> list:
-    """(letter, groups of numbers) for each command, read command by command, every fault
-    raised with its place."""
-    out = []
-    pos = len(d) - len(d.lstrip())
-    for cm in _COMMAND.finditer(d):
-        if cm.start() != pos:
-            raise BadValue(f"numbers before the first command at character {pos + 1}")
-        pos = cm.end()
-        letter, args = cm.group(1), cm.group(2)
-        low = letter.lower()
-        if not out and low != "m":
-            raise BadValue(f"path data must begin with a moveto (M), not {letter!r}")
-        if low == "z":
-            if args.strip(" \t\r\n,"):
-                raise BadValue(f"numbers after {letter!r} at character {cm.start(2) + 1}")
-            out.append((letter, ()))
-            continue
-        if low == "a":
-            out.append((letter, _arc_args(args, cm.start(2))))
-            continue
-        if not _ARGS_OK.fullmatch(args):
-            raise BadValue(f"malformed numbers after {letter!r} at character {cm.start(2) + 1}")
-        nums = [float(v) for v in _NUMS.findall(args)]
-        k = _ARITY[low]
-        if not nums or len(nums) % k:
-            raise BadValue(f"{letter!r} at character {cm.start() + 1} takes numbers in groups "
-                           f"of {k}, not {len(nums)}")
-        if not all(map(math.isfinite, nums)):
-            raise BadValue(f"a number beyond the range of numbers after {letter!r}")
-        out.append((letter, [nums[i:i + k] for i in range(0, len(nums), k)]))
-    if not out:
-        raise BadValue("path data without a command")
-    return out
-
-
-def _build(commands) -> PathData:
-    out = PathData()
-    kinds, r1, r2, r3, r4 = out.kinds, out.rows[1], out.rows[2], out.rows[3], out.rows[4]
-    run_len, starts, closed = out.run_len, out.starts, out.closed
-    cur = start = 0j
-    prev_cmd = ""
-    prev_ctrl = 0j
-    in_run = False
-    count = 0                       # segments in the current run
-    for letter, vals in commands:
-        low = letter.lower()
-        rel = letter != letter.upper()
-        if low == "z":
-            if in_run:
-                if cur != start:
-                    kinds.append(1)
-                    r1.append((cur, start))
-                    count += 1
-                closed[-1] = True
-                if count:
-                    run_len.append(count)
-                else:
-                    starts.pop()
-                    closed.pop()
-            cur = start
-            in_run = False
-            count = 0
-            prev_cmd = "z"
-            continue
-        if low == "m":
-            x, y = vals[0]
-            cur = complex(x, y) + (cur if rel and prev_cmd else 0)
-            start = cur
-            if in_run:
-                if count:
-                    run_len.append(count)
-                else:               # a lone moveto draws nothing
-                    starts.pop()
-                    closed.pop()
-            starts.append(cur)
-            closed.append(False)
-            in_run, count = True, 0
-            prev_cmd = "m"
-            vals = vals[1:]
-            low = "l"               # later pairs are implicit linetos
-            if not vals:
-                continue
-        if not in_run:              # a drawing command right after Z starts at the same point
-            starts.append(cur)
-            closed.append(False)
-            in_run, count = True, 0
-        for v in vals:
-            base = cur if rel else 0j
-            if low == "l":
-                end = complex(v[0], v[1]) + base
-                kinds.append(1)
-                r1.append((cur, end))
-            elif low == "h":
-                end = complex(v[0] + (cur.real if rel else 0.0), cur.imag)
-                kinds.append(1)
-                r1.append((cur, end))
-            elif low == "v":
-                end = complex(cur.real, v[0] + (cur.imag if rel else 0.0))
-                kinds.append(1)
-                r1.append((cur, end))
-            elif low == "c":
-                c1, c2 = complex(v[0], v[1]) + base, complex(v[2], v[3]) + base
-                end = complex(v[4], v[5]) + base
-                kinds.append(3)
-                r3.append((cur, c1, c2, end))
-                prev_ctrl = c2
-            elif low == "s":
-                c1 = 2 * cur - prev_ctrl if prev_cmd in ("c", "s") else cur
-                c2, end = complex(v[0], v[1]) + base, complex(v[2], v[3]) + base
-                kinds.append(3)
-                r3.append((cur, c1, c2, end))
-                prev_ctrl = c2
-            elif low == "q":
-                c, end = complex(v[0], v[1]) + base, complex(v[2], v[3]) + base
-                kinds.append(2)
-                r2.append((cur, c, end))
-                prev_ctrl = c
-            elif low == "t":
-                c = 2 * cur - prev_ctrl if prev_cmd in ("q", "t") else cur
-                end = complex(v[0], v[1]) + base
-                kinds.append(2)
-                r2.append((cur, c, end))
-                prev_ctrl = c
-            else:                   # arc
-                rx, ry, phi, large, sweep, x, y = v
-                end = complex(x, y) + base
-                if end == cur:      # F.6.2: equal end points omit the arc
-                    prev_cmd = low
-                    continue
-                if rx == 0 or ry == 0:
-                    kinds.append(1)
-                    r1.append((cur, end))
-                else:
-                    kinds.append(4)
-                    r4.append((cur, end, abs(rx), abs(ry), phi, large, sweep))
-            count += 1
-            cur = end
-            prev_cmd = low
-    if in_run:
-        if count:
-            run_len.append(count)
-        else:
-            starts.pop()
-            closed.pop()
-    return out
-
-
-def _arc_args(args: str, offset: int) -> list[tuple]:
-    vals, pos = [], 0
-    while pos < len(args) and args[pos:].strip(" \t\r\n"):
-        m = _ARC_ARGS.match(args, pos)
-        if not m:
-            raise BadValue(f"an arc needs rx ry rotation large-arc-flag sweep-flag x y (flags 0 "
-                           f"or 1) at character {offset + pos + 1}")
-        g = m.groups()
-        nums = (float(g[0]), float(g[1]), float(g[2]), int(g[3]), int(g[4]), float(g[5]),
-                float(g[6]))
-        if not all(math.isfinite(v) for v in nums):
-            raise BadValue("a number beyond the range of numbers in an arc")
-        vals.append(nums)
-        pos = m.end()
-    if not vals:
-        raise BadValue(f"an arc command without numbers at character {offset + 1}")
-    return vals
 
 
 def points_path(values: list[float], closed: bool) -> PathData:
@@ -437,3 +173,36 @@ def circle_path(cx: float, cy: float, r: float) -> PathData:
     ((1+0j), 1j)
     """
     return ellipse_path(cx, cy, r, r)
+
+
+def tables_of(paths: list) -> PathTable:
+    """The segments of many `PathData` in one table; each run's owner is the index of its
+    `PathData` in `paths`. Arcs are converted to centre form
+    (`vectorgen.pathdata.arc_centre_form`).
+
+    Examples
+    --------
+    >>> t = tables_of([line_path(0, 0, 3, 4), circle_path(0, 0, 1)])
+    >>> t.kinds.tolist(), t.run_owner.tolist(), t.closed.tolist(), t.paths
+    ([1, 4, 4, 4, 4], [0, 1], [False, True], 2)
+    """
+    kinds, run_len, starts, closed, owner = [], [], [], [], []
+    rows: dict = {1: [], 2: [], 3: [], 4: []}
+    for i, p in enumerate(paths):
+        kinds.extend(p.kinds)
+        for k in (1, 2, 3, 4):
+            rows[k].extend(p.rows[k])
+        run_len.extend(p.run_len)
+        starts.extend(p.starts)
+        closed.extend(p.closed)
+        owner.extend([i] * len(p.run_len))
+    data = {k: np.array(rows[k], dtype=complex) for k in (1, 2, 3) if rows[k]}
+    if rows[4]:
+        a = np.array(rows[4], dtype=complex)
+        centre, rx, ry, rot, theta, delta = arc_centre_form(
+            a[:, 0], a[:, 1], a[:, 2].real, a[:, 3].real, a[:, 4].real, a[:, 5].real != 0,
+            a[:, 6].real != 0)
+        data[4] = np.column_stack([centre, rx, ry, rot, theta, delta, a[:, 1]])
+    return PathTable(np.array(run_len, dtype=np.int64), np.array(kinds, dtype=np.int8), data,
+                     np.array(starts, dtype=complex), np.array(closed, dtype=bool),
+                     np.array(owner, dtype=np.int64), len(paths))

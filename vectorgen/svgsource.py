@@ -4,10 +4,11 @@ Two steps. `vectorgen.svgdoc` resolves the document (CSS, visibility, opacity, `
 viewports, units, references) into plain shapes, each with its segments, its transform to the
 root's user space, its brightness, dash pattern and clip regions. This module is the geometry:
 
-1. every shape's segments mapped into the root's user space in whole-array operations (Bezier
-   control points through the affine map; elliptical arcs converted to centre form (SVG 1.1,
-   F.6.5) and mapped exactly: the image of an ellipse under p -> A p + b has as semi-axes the
-   singular values of A R(phi) diag(rx, ry));
+1. every shape's segments gathered into one table and mapped into the root's user space in
+   whole-array operations (`vectorgen.pathdata.transform_table`: Bezier control points
+   through the affine map; elliptical arcs, in centre form (SVG 1.1, F.6.5), mapped exactly:
+   the image of an ellipse under p -> A p + b has as semi-axes the singular values of
+   A R(phi) diag(rx, ry));
 2. flattened (`vectorgen.flatten`) at the chord tolerance on the screen;
 3. dashed along the arc length in each shape's own user units (stroke-dasharray,
    stroke-dashoffset, pathLength), each dash its own stroke;
@@ -41,10 +42,13 @@ from functools import lru_cache
 import numpy as np
 
 from .errors import InputError, VectorgenWarning
-from .flatten import SegmentTable, flatten_table
+from .flatten import flatten_table
+from .pathdata import (PathTable, concat_tables, hull_points, select_paths, select_runs,
+                       transform_table)
 from .screen import fit_transform
 from .strokes import Strokes, check_finite, clean
-from .svgdoc import Document, read_document
+from .svgdoc import Document, PathRef, read_document
+from .svgpathdata import tables_of
 from .svgvalues import IDENTITY, BadValue, compose, invert
 
 __all__ = ["CAP_HEIGHT_PER_EM", "FIT_MODES", "MM_PER_PX", "document_strokes", "page_box",
@@ -246,188 +250,58 @@ def _empty_hint(doc: Document, geo: "_RootGeometry") -> str:
 
 # --- segments in the root's user space -------------------------------------------------------
 
-def _affine_arrays(mats: np.ndarray, idx: np.ndarray):
-    m = mats[idx]
-    return m[:, 0], m[:, 1], m[:, 2], m[:, 3], m[:, 4], m[:, 5]
+def _root_table(pairs: list) -> PathTable:
+    """The segments of (geometry, transform) pairs in the root's user units, as one
+    `PathTable` whose run owners are the places of the pairs. A geometry is a `PathRef` (a
+    string of the document's path table) or a `PathData` (a basic shape); arcs are mapped
+    exactly (`vectorgen.pathdata.transform_table`)."""
+    table = _gather([g for g, _m in pairs])
+    if not table.segments:
+        return table
+    mats = np.array([m for _g, m in pairs], dtype=float).reshape(-1, 6)
+    if (mats != np.array(IDENTITY)).any():
+        table = transform_table(table, mats, table.run_owner)
+    return table
 
 
-def _map_points(z: np.ndarray, mats: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """Complex points z (m, k) mapped, row r by the transform mats[idx[r]]."""
-    a, b, c, d, e, f = (v[:, None] for v in _affine_arrays(mats, idx))
-    x, y = z.real, z.imag
-    return (a * x + c * y + e) + 1j * (b * x + d * y + f)
+def _gather(geoms: list) -> PathTable:
+    """The segments of `geoms` (PathRef or PathData) in order, each run owned by the place
+    of its geometry."""
+    n = len(geoms)
+    refs: dict = {}                     # path table -> ([places], [string indices])
+    basic_at, basic = [], []
+    for i, g in enumerate(geoms):
+        if isinstance(g, PathRef):
+            got = refs.setdefault(id(g.table), (g.table, [], []))
+            got[1].append(i)
+            got[2].append(g.index)
+        else:
+            basic_at.append(i)
+            basic.append(g)
+    pieces = [(select_paths(table, which), np.array(at, dtype=np.int64))
+              for table, at, which in refs.values()]
+    if basic:
+        pieces.append((tables_of(basic), np.array(basic_at, dtype=np.int64)))
+    if not pieces:
+        return PathTable.empty(n)
+    owner = np.concatenate([at[t.run_owner] for t, at in pieces])
+    if len(pieces) == 1:
+        t = pieces[0][0]
+        joined = PathTable(t.run_len, t.kinds, t.data, t.starts, t.closed, owner, n)
+    else:
+        joined = concat_tables([t for t, _at in pieces])
+    if len(owner) < 2 or (owner[1:] >= owner[:-1]).all():
+        if joined.run_owner is not owner:
+            joined.run_owner, joined.paths = owner, n
+        return joined
+    order = np.argsort(owner, kind="stable")
+    return select_runs(joined, order, owner[order], n)
 
 
-def _arc_centres(raw: np.ndarray):
-    """Endpoint-form arcs (rows: start, end, rx, ry, phi in degrees, large-arc, sweep) to
-    centre form (centre, rx, ry, phi, theta1, dtheta; radians).
-
-    Notes
-    -----
-    SVG 1.1, F.6.5 (conversion from endpoint to centre parameterisation) and F.6.6 (radii too
-    small for the end points are scaled up by sqrt(Lambda), Lambda = x1'^2/rx^2 + y1'^2/ry^2).
-    """
-    s, e = raw[:, 0], raw[:, 1]
-    rx, ry = np.abs(raw[:, 2].real), np.abs(raw[:, 3].real)
-    phi = np.radians(raw[:, 4].real)
-    large, sweep = raw[:, 5].real != 0, raw[:, 6].real != 0
-    cphi, sphi = np.cos(phi), np.sin(phi)
-    dx2, dy2 = (s.real - e.real) / 2.0, (s.imag - e.imag) / 2.0
-    x1p = cphi * dx2 + sphi * dy2
-    y1p = -sphi * dx2 + cphi * dy2
-    lam = (x1p / rx) ** 2 + (y1p / ry) ** 2
-    grow = np.sqrt(np.maximum(lam, 1.0))
-    rx, ry = rx * grow, ry * grow
-    with np.errstate(divide="ignore", invalid="ignore"):
-        num = (rx * ry) ** 2 - (rx * y1p) ** 2 - (ry * x1p) ** 2
-        den = (rx * y1p) ** 2 + (ry * x1p) ** 2
-        coef = np.sqrt(np.maximum(np.where(den > 0, num / den, 0.0), 0.0))
-    coef = np.where(large != sweep, coef, -coef)
-    cxp, cyp = coef * rx * y1p / ry, -coef * ry * x1p / rx
-    cx = cphi * cxp - sphi * cyp + (s.real + e.real) / 2.0
-    cy = sphi * cxp + cphi * cyp + (s.imag + e.imag) / 2.0
-    ux, uy = (x1p - cxp) / rx, (y1p - cyp) / ry
-    vx, vy = (-x1p - cxp) / rx, (-y1p - cyp) / ry
-    theta1 = np.arctan2(uy, ux)
-    dtheta = np.arctan2(ux * vy - uy * vx, ux * vx + uy * vy)
-    dtheta = np.where(~sweep & (dtheta > 0), dtheta - 2 * np.pi, dtheta)
-    dtheta = np.where(sweep & (dtheta < 0), dtheta + 2 * np.pi, dtheta)
-    return cx + 1j * cy, rx, ry, phi, theta1, dtheta
-
-
-def _map_arcs(centre, rx, ry, rot, theta, delta, mats, idx):
-    """Arcs in centre form mapped exactly by per-arc affine transforms.
-
-    Notes
-    -----
-    A point of the arc is c + K (cos t, sin t) with K = A R(rot) diag(rx, ry). With the
-    singular value decomposition K = U S V^T (U a rotation), the image ellipse has semi-axes
-    S, rotation angle(U) and parameter t' = t + beta when V^T is a rotation by beta, or
-    t' = beta - t (the sweep reversed) when V^T is a reflection (det A < 0). Returns also a
-    mask of arcs squashed flat (S_1 ~ 0).
-    """
-    a, b, c, d, e, f = _affine_arrays(mats, idx)
-    A = np.stack([np.stack([a, c], -1), np.stack([b, d], -1)], -2)
-    cr, sr = np.cos(rot), np.sin(rot)
-    R = np.stack([np.stack([cr * rx, -sr * ry], -1), np.stack([sr * rx, cr * ry], -1)], -2)
-    U, S, Vt = np.linalg.svd(A @ R)
-    flipU = np.linalg.det(U) < 0
-    U[flipU, :, 1] *= -1
-    Vt[flipU, 1, :] *= -1
-    new_rot = np.arctan2(U[:, 1, 0], U[:, 0, 0])
-    beta = np.arctan2(Vt[:, 1, 0], Vt[:, 0, 0])
-    mirrored = np.linalg.det(Vt) < 0
-    new_theta = np.where(mirrored, beta - theta, theta + beta)
-    new_delta = np.where(mirrored, -delta, delta)
-    x, y = centre.real, centre.imag
-    new_centre = (a * x + c * y + e) + 1j * (b * x + d * y + f)
-    flat = S[:, 1] <= 1e-12 * np.maximum(S[:, 0], 1e-300)
-    return new_centre, S[:, 0], S[:, 1], new_rot, new_theta, new_delta, flat
-
-
-def _arc_extremes(centre, rx, ry, rot, theta, delta) -> np.ndarray:
-    """Points whose bounding box holds each arc: its ends and the extremes of its ellipse in x
-    and y that lie on the arc (where dx/dt = 0 or dy/dt = 0)."""
-    c, s = np.cos(rot), np.sin(rot)
-    ts = [np.arctan2(-ry * s, rx * c), np.arctan2(ry * c, rx * s)]
-    ts = np.stack(ts + [t + np.pi for t in ts], 1)                      # (m, 4)
-    swept = np.where(delta[:, None] >= 0, (ts - theta[:, None]) % (2 * np.pi),
-                     (theta[:, None] - ts) % (2 * np.pi))
-    on = swept <= np.abs(delta)[:, None]
-    local = rx[:, None] * np.cos(ts) + 1j * ry[:, None] * np.sin(ts)
-    pts = centre[:, None] + local * np.exp(1j * rot)[:, None]
-    ends = centre + (rx * np.cos(theta + delta) + 1j * ry * np.sin(theta + delta)) * np.exp(
-        1j * rot)
-    return np.concatenate([pts[on], ends])
-
-
-class _Table:
-    """The segments of (PathData, transform) pairs in root user units, as a `SegmentTable`,
-    with the owner of every run."""
-
-    def __init__(self, pairs: list):
-        kinds, run_len, starts, closed, run_owner = [], [], [], [], []
-        rows = {1: [], 2: [], 3: [], 4: []}
-        owners = {1: [], 2: [], 3: [], 4: []}
-        for i, (p, _m) in enumerate(pairs):
-            kinds.extend(p.kinds)
-            for k in (1, 2, 3, 4):
-                r = p.rows[k]
-                if r:
-                    rows[k].extend(r)
-                    owners[k].append((i, len(r)))
-            run_len.extend(p.run_len)
-            starts.extend(p.starts)
-            closed.extend(p.closed)
-            run_owner.extend([i] * len(p.run_len))
-        mats = np.array([m for _p, m in pairs], dtype=float).reshape(-1, 6)
-        moved = ~np.all(mats == np.array(IDENTITY), axis=1)
-        self.kinds = np.array(kinds, dtype=np.int8)
-        self.run_len = np.array(run_len, dtype=np.int64)
-        self.closed = np.array(closed, dtype=bool)
-        self.run_owner = np.array(run_owner, dtype=np.int64)
-        starts = np.array(starts, dtype=complex)
-
-        def owner_of(k):
-            return np.repeat([i for i, _n in owners[k]], [n for _i, n in owners[k]]).astype(
-                np.int64)
-
-        if moved.any():
-            starts = _map_points(starts[:, None], mats, self.run_owner)[:, 0]
-        data = {}
-        for k in (1, 2, 3):
-            if rows[k]:
-                ctrl = np.array(rows[k], dtype=complex)
-                if moved.any():
-                    ctrl = _map_points(ctrl, mats, owner_of(k))
-                data[k] = ctrl
-        if rows[4]:
-            centre, rx, ry, rot, theta, delta = _arc_centres(np.array(rows[4], dtype=complex))
-            end = np.array([r[1] for r in rows[4]], dtype=complex)
-            if moved.any():
-                idx = owner_of(4)
-                centre, rx, ry, rot, theta, delta, flat = _map_arcs(
-                    centre, rx, ry, rot, theta, delta, mats, idx)
-                end = _map_points(end[:, None], mats, idx)[:, 0]
-                if flat.any():
-                    data, centre, rx, ry, rot, theta, delta, end = self._flat_arcs_to_lines(
-                        data, flat, rows, mats, idx, centre, rx, ry, rot, theta, delta, end)
-            if len(centre):
-                data[4] = np.column_stack([centre, rx, ry, rot, theta, delta, end])
-        self.data = data
-        self.starts = starts
-        self.table = SegmentTable(self.run_len, self.kinds, data, starts, [])
-
-    def _flat_arcs_to_lines(self, data, flat, rows, mats, idx, centre, rx, ry, rot, theta,
-                            delta, end):
-        # An arc squashed flat by a transform is drawn as the line between its end points.
-        arc_pos = np.flatnonzero(self.kinds == 4)
-        start = _map_points(np.array([r[0] for r in rows[4]], dtype=complex)[:, None], mats,
-                            idx)[:, 0]
-        new_lines = np.column_stack([start[flat], end[flat]])
-        line_pos = np.flatnonzero(self.kinds == 1)
-        self.kinds[arc_pos[flat]] = 1
-        old = data.get(1, np.zeros((0, 2), dtype=complex))
-        merged = np.concatenate([old, new_lines])
-        order = np.argsort(np.concatenate([line_pos, arc_pos[flat]]), kind="stable")
-        data[1] = merged[order]
-        keep = ~flat
-        return (data, centre[keep], rx[keep], ry[keep], rot[keep], theta[keep], delta[keep],
-                end[keep])
-
-    def hull_points(self) -> np.ndarray:
-        """Points whose bounding box holds every segment (control points, arc extremes)."""
-        parts = [self.starts] + [self.data[k].ravel() for k in (1, 2, 3) if k in self.data]
-        if 4 in self.data:
-            a = self.data[4]
-            parts.append(_arc_extremes(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real,
-                                       a[:, 4].real, a[:, 5].real))
-        return np.concatenate(parts) if parts else np.zeros(0, dtype=complex)
-
-    def flatten(self, tol: float) -> tuple[np.ndarray, np.ndarray]:
-        if not self.table.segments:
-            return np.zeros((0, 2)), np.zeros(1, dtype=np.int64)
-        return flatten_table(self.table, tol)
+def _flatten(table: PathTable, tol: float) -> tuple[np.ndarray, np.ndarray]:
+    if not table.segments:
+        return np.zeros((0, 2)), np.zeros(1, dtype=np.int64)
+    return flatten_table(table, tol)
 
 
 class _RootGeometry:
@@ -437,8 +311,8 @@ class _RootGeometry:
     def __init__(self, doc: Document):
         self.doc = doc
         self.shapes = doc.shapes
-        self.table = _Table([(s.path, s.matrix) for s in doc.shapes])
-        hull = self.table.hull_points()
+        self.table = _root_table([(s.path, s.matrix) for s in doc.shapes])
+        hull = hull_points(self.table) if self.table.segments else np.zeros(0, dtype=complex)
         if hull.size and not (np.all(np.isfinite(hull))
                               and np.abs(hull).max() <= COORD_LIMIT_USER):
             bad = int(np.argmax(~np.isfinite(hull) | (np.abs(hull) > COORD_LIMIT_USER)))
@@ -446,11 +320,11 @@ class _RootGeometry:
                              f"({hull[bad].real:g}, {hull[bad].imag:g})")
         self.texts_undrawn = 0
         self.text_lines = _set_texts(doc, self)          # [(order, points, intens, label, clips)]
-        self.empty = not self.table.table.segments and not self.text_lines
+        self.empty = not self.table.segments and not self.text_lines
         self._regions: dict = {}
 
     def hull(self) -> tuple[float, float, float, float]:
-        pts = [self.table.hull_points()]
+        pts = [hull_points(self.table)] if self.table.segments else []
         pts += [t[1][:, 0] + 1j * t[1][:, 1] for t in self.text_lines]
         z = np.concatenate(pts)
         return (float(z.real.min()), float(z.imag.min()), float(z.real.max()),
@@ -459,7 +333,7 @@ class _RootGeometry:
     def strokes(self, tol: float) -> Strokes:
         """Every stroke in root user units at chord tolerance `tol` (user units)."""
         shapes = self.shapes
-        pts, offsets = self.table.flatten(tol)
+        pts, offsets = _flatten(self.table, tol)
         owner = self.table.run_owner
         special = {i for i, s in enumerate(shapes) if s.dash or s.clips}
         lens = _run_extent(pts, offsets)
@@ -532,8 +406,8 @@ class _RootGeometry:
         if region is None:
             areas = []
             for item in node.items:
-                area = _fill_area(_Table([(item.path, compose(base, item.matrix))]), tol,
-                                  item.rule)
+                area = _fill_area(_root_table([(item.path, compose(base, item.matrix))]),
+                                  tol, item.rule)
                 for inner in item.clips:
                     area = shapely.intersection(area, self._region(inner, tol))
                 areas.append(area)
@@ -700,7 +574,7 @@ def _inverse_or_nan(m) -> tuple:
 
 # --- clip regions ----------------------------------------------------------------------------
 
-def _fill_area(table: _Table, tol: float, rule: str):
+def _fill_area(table: PathTable, tol: float, rule: str):
     """The area a path fills by its fill (clip) rule, as a shapely geometry.
 
     Notes
@@ -712,7 +586,7 @@ def _fill_area(table: _Table, tol: float, rule: str):
     """
     import shapely
 
-    pts, offsets = table.flatten(tol)
+    pts, offsets = _flatten(table, tol)
     rings = []
     for r in range(len(offsets) - 1):
         ring = pts[offsets[r]:offsets[r + 1]]
