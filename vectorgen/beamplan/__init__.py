@@ -63,6 +63,10 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         segments of at most CAP_STEP_MM, a piece ends (with no dwell) wherever the cap changes
         by more than CAP_BREAK, and every piece is drawn no faster than its segments allow:
         strokes slow down where their speed needs more drive than is left, and only there.
+    ordered : tuple, optional
+        `order_frame`'s answer for these strokes, when the caller already has it (it then
+        checked the frame's size with `check_frame_size` before ordering; it is not checked
+        again).
 
     Returns
     -------
@@ -84,7 +88,8 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     """
     if strokes.count == 0:
         raise InputError("nothing to draw: the drawing is empty (or wholly off the screen)")
-    check_frame_size(strokes, timing, target_samples)
+    if ordered is None:         # (a caller that ordered the frame checked its size first)
+        check_frame_size(strokes, timing, target_samples)
     strategy = ORDERINGS[ordering]
     jumps = timing.jumps if jumps is None else jumps
     px, py, offs, stroke_intensity, drawn = (ordered if ordered is not None else
