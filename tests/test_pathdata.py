@@ -25,7 +25,8 @@ from hypothesis import strategies as st
 from vectorgen.errors import InputError
 from vectorgen.flatten import bezier_points, flatten_table, segment_table
 from vectorgen.pathdata import (PathTable, arc_centre_form, concat_tables, parse_path_data,
-                                parse_path_list, table_bounds, transform_table)
+                                parse_path_list, read_path_list, select_paths, table_bounds,
+                                transform_table)
 
 svgpathtools = pytest.importorskip("svgpathtools")
 
@@ -463,6 +464,34 @@ def test_error_names_the_right_string_of_a_batch():
         parse_path_list(["M0 0 L1 1", "M 0 0 L 10 x"], ["path#a", "path#b"])
     # control: the same strings fixed read without complaint
     assert parse_path_list(["M0 0 L1 1", "M 0 0 L 10 9"]).segments == 2
+
+
+def test_faults_in_a_batch_are_set_aside_and_the_other_strings_read_as_alone():
+    good = ["M0 0 L1 1 Q 2 2 3 0", "M5 5 A 3 2 10 0 1 9 9 z m 1 1 h 2", "m1 1 c 1 2 3 4 5 6",
+            "M 3 4 A 5 5 0 1 1 3 -4"]
+    bad = {1: ("M 0 0 L 10 x", 12), 3: ("L 1 2", 1), 4: ("M0 0 a1 1 0 2 0 5 5", 13),
+           6: ("M 1e 2", 4)}
+    ds = list(good)
+    for i in sorted(bad):
+        ds.insert(i, bad[i][0])
+    table, faults = read_path_list(ds)
+    assert sorted(faults) == sorted(bad)                  # positions counted by hand
+    for i, (_d, pos) in bad.items():
+        assert f"at character {pos}:" in faults[i] and "\n" not in faults[i]
+    kept = [i for i in range(len(ds)) if i not in bad]
+    assert sorted(set(table.run_owner.tolist())) == kept and table.paths == len(ds)
+    assert_same_curves(table, [g for d in good for g in ref_path(d)])      # svgpathtools
+    # control: the same batch without its faults reads with none set aside
+    assert read_path_list(good)[1] == {}
+
+
+def test_selected_paths_come_in_the_order_asked_with_repeats():
+    ds = ["M0 0 L1 1 Q 2 2 3 0", "", "M5 5 A 3 2 10 0 1 9 9 z m 1 1 h 2", "m1 1 c 1 2 3 4 5 6"]
+    table = select_paths(parse_path_list(ds), [3, 0, 3, 1, 2])
+    assert_same_curves(table, ref_path(ds[3]) + ref_path(ds[0]) + ref_path(ds[3])
+                       + ref_path(ds[2]))                                   # svgpathtools
+    assert table.run_owner.tolist() == [0, 1, 2, 4, 4] and table.paths == 5
+    assert table.closed.tolist() == [False, False, False, True, False]
 
 
 # --- joining, bounds, maps ---------------------------------------------------------------------

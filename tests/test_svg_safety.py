@@ -8,7 +8,8 @@ byte order mark or the first bytes: UTF-8, UTF-16 and UTF-32 in both byte orders
 "billion laughs" expansion attack (common practice, no source), SVG 2 6.8 / CSS Transforms 1
 (an invalid presentation attribute, transform included, is ignored; resvg, checked here,
 does the same), SVG 2 10.2-10.4 (a negative width, height or r is invalid; the initial value
-0 disables rendering; a negative rx is auto).
+0 disables rendering; a negative rx is auto), SVG 1.1 5.3.1 (what is inside <defs> is not
+rendered directly).
 """
 
 from __future__ import annotations
@@ -140,6 +141,18 @@ def test_deep_nesting_is_refused(tmp_path):
     body = "<g>" * 300 + '<line x2="5"/>' + "</g>" * 300
     with pytest.raises(InputError, match="nested more than"):
         svg_to_strokes(write_svg(tmp_path, body), SCREEN)
+
+
+def test_path_data_that_is_never_drawn_is_no_error(tmp_path):
+    """SVG 1.1, 5.3.1: what is inside <defs> is not rendered directly; so its path data is
+    only read when a <use> draws it, and a fault in it is an error only then."""
+    good = '<path d="M 10 10 H 60"/><path d="M 10 20 H 60"/>'
+    unused = '<defs><path id="p" d="M 0 0 L 10 x"/></defs>'
+    s = svg_to_strokes(write_svg(tmp_path, unused + good), SCREEN, fit="off")
+    assert s.count == 2 and s.total_length() == pytest.approx(100.0)   # 2 x 50 by hand
+    # control: the same path drawn through a <use> is the error, naming it and the character
+    with pytest.raises(InputError, match=r"<path id='p'> on line 3 has d=.*character 12"):
+        svg_to_strokes(write_svg(tmp_path, unused + good + '<use href="#p"/>'), SCREEN)
 
 
 # --- the command line: one line naming the element and the attribute ---------------------------
