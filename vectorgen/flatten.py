@@ -37,41 +37,92 @@ def bezier_points(ctrl: np.ndarray, t: np.ndarray) -> np.ndarray:
             + t ** 3 * ctrl[:, 3])
 
 
+_TURN_STEPS = 32
+
+
+def _turn(dx0, dy0, dx1, dy1) -> np.ndarray:
+    """|angle| from one direction to the next, in (0, pi]. A direction of zero length counts
+    as +x (so a curve whose control point sits on its end point is given a little more
+    turning than it has, never less)."""
+    z0 = (dx0 == 0) & (dy0 == 0)
+    z1 = (dx1 == 0) & (dy1 == 0)
+    if z0.any() or z1.any():
+        dx0, dx1 = np.where(z0, 1.0, dx0), np.where(z1, 1.0, dx1)
+    return np.abs(np.arctan2(dx0 * dy1 - dy0 * dx1, dx0 * dx1 + dy0 * dy1))
+
+
 def _bezier_turn_counts(ctrl: np.ndarray) -> np.ndarray:
-    """Chords needed so each turns <= MAX_TURN_DEG: total turning estimated on 32 steps."""
-    t = np.linspace(0.0, 1.0, 33)
-    k = ctrl.shape[1] - 1
-    d = k * np.diff(ctrl, axis=1)       # derivative control points
-    tt = np.broadcast_to(t, (len(ctrl), len(t)))
-    if k == 2:
-        deriv = (1 - tt) * d[:, :1] + tt * d[:, 1:2]
+    """Chords needed so each turns <= MAX_TURN_DEG, from the total turning of the tangent.
+
+    A quadratic's derivative runs along a straight line, so its direction turns one way only
+    and the total is the angle between the end derivatives. A cubic's may turn back at its
+    inflections: the total is summed over 32 even steps of t."""
+    d = np.diff(ctrl, axis=1)           # derivative control points (up to the degree factor)
+    dx, dy = d.real, d.imag
+    if ctrl.shape[1] == 3:
+        turn = _turn(dx[:, 0], dy[:, 0], dx[:, 1], dy[:, 1])
     else:
-        deriv = ((1 - tt) ** 2 * d[:, :1] + 2 * (1 - tt) * tt * d[:, 1:2] + tt ** 2 * d[:, 2:3])
-    ang = np.angle(deriv)
-    turn = np.abs(np.angle(np.exp(1j * np.diff(ang, axis=1)))).sum(axis=1)
+        t = np.linspace(0.0, 1.0, _TURN_STEPS + 1)
+        w = np.stack([(1 - t) ** 2, 2 * (1 - t) * t, t ** 2])          # (3, 33)
+        sx, sy = dx @ w, dy @ w                                         # (m, 33)
+        turn = _turn(sx[:, :-1], sy[:, :-1], sx[:, 1:], sy[:, 1:]).sum(axis=1)
     return np.ceil(np.degrees(turn) / MAX_TURN_DEG).astype(np.int64)
+
+
+def _bezier_counts(ctrl: np.ndarray, tol: float) -> np.ndarray:
+    """Chords of each Bezier (ctrl (m, k+1) complex): the chord-error bound and the turn
+    limit."""
+    k = ctrl.shape[1] - 1
+    if k == 1:
+        return np.ones(len(ctrl), dtype=np.int64)
+    second = np.abs(ctrl[:, :-2] - 2 * ctrl[:, 1:-1] + ctrl[:, 2:]).max(axis=1) * k * (k - 1)
+    n = np.maximum(_counts_from_bound(second, tol), _bezier_turn_counts(ctrl))
+    return np.clip(n, 1, MAX_CHORDS)
+
+
+def _steps(n: np.ndarray):
+    """For segments of n[j] chords: each point's segment and its parameter k / n[j]
+    (k = 1 .. n[j])."""
+    seg = np.repeat(np.arange(len(n)), n)
+    first = np.cumsum(n) - n
+    k = np.arange(len(seg)) - np.repeat(first - 1, n)
+    return seg, k / np.repeat(n, n)
+
+
+def _bezier_xy(ctrl: np.ndarray, n: np.ndarray):
+    """x and y of the points t = k / n (k = 1 .. n) of each Bezier (Bernstein form: t = 1
+    lands exactly on the end point)."""
+    seg, t = _steps(n)
+    s = 1.0 - t
+    k = ctrl.shape[1] - 1
+    if k == 1:
+        w = (t,)
+        cols = ctrl[:, 1:]
+    elif k == 2:
+        w = (s * s, 2 * s * t, t * t)
+        cols = ctrl
+    else:
+        st = s * t
+        w = (s * s * s, 3 * s * st, 3 * st * t, t * t * t)
+        cols = ctrl
+    x = np.zeros(len(t))
+    y = np.zeros(len(t))
+    for j, wj in enumerate(w):
+        c = cols[:, j]
+        x += wj * c.real[seg]
+        y += wj * c.imag[seg]
+    return x, y
 
 
 def flatten_beziers(ctrl: np.ndarray, tol: float) -> tuple[np.ndarray, np.ndarray]:
     """Flatten m Beziers of one degree (ctrl (m, k+1) complex). Returns (points complex,
     counts) where segment j contributes counts[j] points: t in (0, 1], start point excluded."""
-    k = ctrl.shape[1] - 1
-    if k == 1:
-        n = np.ones(len(ctrl), dtype=np.int64)
-    else:
-        second = np.abs(ctrl[:, :-2] - 2 * ctrl[:, 1:-1] + ctrl[:, 2:]).max(axis=1) * k * (k - 1)
-        n = np.maximum(_counts_from_bound(second, tol), _bezier_turn_counts(ctrl))
-        n = np.clip(n, 1, MAX_CHORDS)
-    seg = np.repeat(np.arange(len(ctrl)), n)
-    idx = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n) + 1
-    t = idx / n[seg]
-    return bezier_points(ctrl[seg], t), n
+    n = _bezier_counts(ctrl, tol)
+    x, y = _bezier_xy(ctrl, n)
+    return x + 1j * y, n
 
 
-def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.ndarray,
-                 theta0: np.ndarray, delta: np.ndarray, tol: float):
-    """Flatten m elliptical arcs (angles in radians; rot = ellipse rotation). Same output
-    convention as flatten_beziers. The last point of each arc is its exact end angle."""
+def _arc_counts(rx, ry, delta, tol: float) -> np.ndarray:
     r = np.maximum(rx, ry)
     cos_arg = np.clip(1.0 - tol / np.maximum(r, 1e-300), -1.0, 1.0)
     # The tangent of x = a cos t, y = b sin t (a >= b) turns at up to a / b times the rate of
@@ -80,12 +131,26 @@ def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.nda
     flat = np.minimum(rx, ry) / np.maximum(r, 1e-300)
     step = np.minimum(2.0 * np.arccos(cos_arg), np.radians(MAX_TURN_DEG) * flat)
     step = np.where(step > 0, step, np.radians(MAX_TURN_DEG))
-    n = np.clip(np.ceil(np.abs(delta) / step).astype(np.int64), 1, MAX_CHORDS)
-    seg = np.repeat(np.arange(len(center)), n)
-    idx = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n) + 1
-    ang = theta0[seg] + delta[seg] * (idx / n[seg])
-    local = rx[seg] * np.cos(ang) + 1j * ry[seg] * np.sin(ang)
-    return center[seg] + local * np.exp(1j * rot[seg]), n
+    return np.clip(np.ceil(np.abs(delta) / step).astype(np.int64), 1, MAX_CHORDS)
+
+
+def _arc_xy(center, rx, ry, rot, theta0, delta, n):
+    seg, u = _steps(n)
+    ang = theta0[seg] + delta[seg] * u
+    c, s = np.cos(ang), np.sin(ang)
+    cr, sr = np.cos(rot), np.sin(rot)
+    x = center.real[seg] + (rx * cr)[seg] * c - (ry * sr)[seg] * s
+    y = center.imag[seg] + (rx * sr)[seg] * c + (ry * cr)[seg] * s
+    return x, y
+
+
+def flatten_arcs(center: np.ndarray, rx: np.ndarray, ry: np.ndarray, rot: np.ndarray,
+                 theta0: np.ndarray, delta: np.ndarray, tol: float):
+    """Flatten m elliptical arcs (angles in radians; rot = ellipse rotation). Same output
+    convention as flatten_beziers. The last point of each arc is its exact end angle."""
+    n = _arc_counts(rx, ry, delta, tol)
+    x, y = _arc_xy(center, rx, ry, rot, theta0, delta, n)
+    return x + 1j * y, n
 
 
 class SegmentTable:
@@ -159,35 +224,42 @@ def flatten_table(table: SegmentTable, tol: float) -> tuple[np.ndarray, np.ndarr
     vectorised call). Returns the points (P, 2) of all runs packed end to end and the run offsets
     (R + 1,): run r is points[offsets[r]:offsets[r + 1]], its first point the run's start. A
     table can be flattened again at another tolerance."""
-    kinds, run_len = table.kinds, table.run_len
+    kinds, run_len = np.asarray(table.kinds), np.asarray(table.run_len, dtype=np.int64)
     m = len(kinds)
-    flat = {}
+    counts = {}
     for kind in (1, 2, 3):
         if kind in table.data:
-            flat[kind] = flatten_beziers(table.data[kind], tol)
+            counts[kind] = _bezier_counts(table.data[kind], tol)
     if 4 in table.data:
         a = table.data[4]
-        pts, n = flatten_arcs(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
-                              a[:, 5].real, tol)
-        pts[np.cumsum(n) - 1] = a[:, 6]      # land exactly on each arc's end point
-        flat[4] = (pts, n)
+        counts[4] = _arc_counts(a[:, 1].real, a[:, 2].real, a[:, 5].real, tol)
 
     # Layout: each run is its start point followed by its segments' points in order.
     n_seg = np.zeros(m, dtype=np.int64)
-    for kind, (_pts, n) in flat.items():
+    for kind, n in counts.items():
         n_seg[kinds == kind] = n
     seg_run = np.repeat(np.arange(len(run_len)), run_len)
     run_first = np.cumsum(run_len) - run_len
-    offsets = np.concatenate([[0], np.cumsum(1 + np.bincount(seg_run, weights=n_seg,
-                                                             minlength=len(run_len)))]).astype(np.int64)
+    per_run = np.bincount(seg_run, weights=n_seg, minlength=len(run_len)).astype(np.int64)
+    offsets = np.concatenate([[0], np.cumsum(1 + per_run)]).astype(np.int64)
     before = np.cumsum(n_seg) - n_seg                  # points of earlier segments, all runs
     seg_dest = offsets[seg_run] + 1 + before - before[run_first][seg_run]
-    z = np.empty(offsets[-1], dtype=complex)
-    z[offsets[:-1]] = table.starts
-    for kind, (pts, n) in flat.items():
-        dest = np.repeat(seg_dest[kinds == kind], n)
-        z[dest + np.arange(len(pts)) - np.repeat(np.cumsum(n) - n, n)] = pts
-    return np.column_stack([z.real, z.imag]), offsets
+    out = np.empty((int(offsets[-1]), 2))
+    starts = np.asarray(table.starts)
+    out[offsets[:-1], 0], out[offsets[:-1], 1] = starts.real, starts.imag
+    for kind, n in counts.items():
+        if kind == 4:
+            a = table.data[4]
+            x, y = _arc_xy(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
+                           a[:, 5].real, n)
+            last = np.cumsum(n) - 1
+            x[last], y[last] = a[:, 6].real, a[:, 6].imag    # land exactly on each end point
+        else:
+            x, y = _bezier_xy(table.data[kind], n)
+        first = np.cumsum(n) - n
+        dest = np.repeat(seg_dest[kinds == kind] - first, n) + np.arange(len(x))
+        out[dest, 0], out[dest, 1] = x, y
+    return out, offsets
 
 
 def circle_points(radius: float, center=(0.0, 0.0), tolerance_mm: float = 0.02) -> np.ndarray:
