@@ -32,6 +32,8 @@ LIT_DRIVE_LIMIT = 0.9        # strokes slow down where their compensated drive w
                              # (the rest is headroom for the ringing of a sudden start or stop)
 BALANCE_REACHES = (0.9, 0.7, 0.5, 0.35, 0.25)
 MIN_CAP_FRACTION = 0.05      # the slowest a drive limit makes a stroke, of the writing speed
+ACCEL_DRIVE_TOP = 0.85       # a second-order deflection's acceleration may use the drive up to
+ACCEL_DRIVE_FLOOR = 0.02     # this (at least this much of it, where a stroke lies further out)
 
 
 def stages_for(profile, response=None) -> list:
@@ -316,6 +318,7 @@ class Renderer:
         self.cmap = ChannelMap(profile.output, self.channels)
         self.jumps = self._jump_model()
         self.speed_cap = self._speed_cap(self.rate) if settings.compensate else None
+        self.accel = self._accel_limit(self.rate) if settings.compensate else None
         if settings.refresh is not None:
             self.target = max(1, int(round(self.rate / settings.refresh)))
         else:
@@ -332,6 +335,27 @@ class Renderer:
         if out.band_limited:
             return ShapedJumps(t.jump_step_mm, t.settle)
         return t.jumps
+
+    def _accel_limit(self, rate: int):
+        """For a second-order response: the largest change of the spot's speed per sample (mm
+        per sample^2) at each vertex, accel(px, py) for the planner (None otherwise). The
+        compensated drive of such a deflection is u + (2 zeta / wn) du/dt + (1 / wn^2)
+        d^2u/dt^2, so an acceleration A asks for A / wn^2 of drive: it may take what is left
+        below ACCEL_DRIVE_TOP at that place once the speed's share is taken (at least
+        ACCEL_DRIVE_FLOOR), on the slower axis, in the weakest axis's mm."""
+        if self.response.order != 2:
+            return None
+        wn2 = (2.0 * np.pi * np.asarray(self.response.natural_hz, dtype=float)) ** 2
+        lag = np.asarray(self.response.lag_s, dtype=float)
+        mm_per_fs = float(np.abs(np.linalg.eigvals(self.model.matrix)).min())
+        model = self.model
+
+        def accel(px, py, speed):
+            u = np.abs(model.drive_from_xy(px, py))
+            moving = lag * (np.asarray(speed)[:, None] * rate / mm_per_fs)   # FS, lag term
+            room = np.maximum(ACCEL_DRIVE_TOP - u - moving, ACCEL_DRIVE_FLOOR)
+            return (room * wn2).min(axis=1) * mm_per_fs / float(rate) ** 2
+        return accel
 
     def _speed_cap(self, rate: int):
         """The largest point spacing per piece for which a lagging deflection's compensated
@@ -511,8 +535,10 @@ class Renderer:
 
     def _plan(self, strokes, timing, ordered):
         """The plan at these timings, for the strokes in the order `order_frame` gave."""
+        free = self.target is None
         return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
-                          self.speed_cap if self.target is None else None, ordered=ordered)
+                          self.speed_cap if free else None, ordered=ordered,
+                          accel=self.accel if free else None)
 
     def _faster(self, strokes, plan, ordered):
         """Re-plan at the writing speed that brings the frame to refresh_target_hz, at most the

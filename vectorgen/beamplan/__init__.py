@@ -41,7 +41,8 @@ CAP_BREAK = 1.25        # ... and a piece ends where the allowed speed changes b
 
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
-               ordering: str = "tour", jumps=None, speed_cap=None, ordered=None) -> Plan:
+               ordering: str = "tour", jumps=None, speed_cap=None, ordered=None,
+               accel=None) -> Plan:
     """The beam plan for one frame.
 
     Parameters
@@ -63,6 +64,18 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         segments of at most CAP_STEP_MM, a piece ends (with no dwell) wherever the cap changes
         by more than CAP_BREAK, and every piece is drawn no faster than its segments allow:
         strokes slow down where their speed needs more drive than is left, and only there.
+    accel : callable, optional
+        ``accel(px, py, speed) -> (P,) mm per sample^2``: the largest change of the spot's
+        speed per sample at each vertex, where it moves at most `speed` (P,) mm per sample
+        (a deflection whose drive acts on the acceleration, such as a
+        second-order amplifier, can make no sudden change of velocity). Every lit piece then
+        speeds up and slows down evenly (`layout.ramp_distance`) between its ends, at rest
+        where it stops (stroke ends, sharp corners) and at the slower of the two speeds where
+        it runs on into the next piece, with its junction speeds brought within reach of
+        each other by a forward and a backward pass; and a gentle corner (a turn below
+        corner_angle_deg, passed without stopping) is taken no faster than its change of
+        direction allows in one sample, 2 v sin(turn / 2) <= accel: the slow-down grows with
+        the turn (none on a straight run). Needs `speed_cap`.
     ordered : tuple, optional
         `order_frame`'s answer for these strokes, when the caller already has it (it then
         checked the frame's size with `check_frame_size` before ordering; it is not checked
@@ -117,8 +130,13 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
     # a pair of consecutive boundaries belongs to one stroke unless the first is a stroke's last.
     soft = np.zeros(len(px), dtype=bool)         # piece ends with no dwell: the cap changes
+    acc = None
     if speed_cap is not None and len(px) > 1:
         seg_cap = speed_cap(px, py)
+        if accel is not None:
+            near = np.minimum(np.r_[seg_cap, np.inf], np.r_[np.inf, seg_cap])
+            acc = np.asarray(accel(px, py, np.minimum(near, timing.spacing_mm)), dtype=float)
+            seg_cap = np.minimum(seg_cap, _turn_caps(px, py, is_last, sharp, acc))
         seg_cap[is_last[:-1]] = np.inf             # the gap from one stroke to the next
         c_in, c_out = seg_cap[:-1], seg_cap[1:]
         lo = np.minimum(c_in, c_out)
@@ -155,13 +173,21 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         seg = np.append(seg_cap, np.inf)
         cap = np.minimum.reduceat(seg, np.column_stack([a, b]).ravel())[::2]
         piece_n = np.maximum(piece_n, np.ceil(piece_len / cap - 1e-9).astype(np.int64))
+    ramp = None
+    if acc is not None and len(piece_len):
+        seg_acc = np.append(np.minimum(acc[:-1], acc[1:]), np.inf)
+        seg_acc[is_last] = np.inf
+        a_piece = np.minimum.reduceat(seg_acc, np.column_stack([a, b]).ravel())[::2]
+        runs_on = soft[a] & (np.r_[False, b[:-1] == a[1:]])      # joined to the piece before
+        piece_n, ramp = _ramped(piece_len, piece_n, a_piece, runs_on)
     n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
     if n_total > MAX_FRAME_SAMPLES:
         raise InputError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f}"
                          f" s): raise the writing speed or draw less", parameter="speed")
 
     layout, lit, runs = _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke,
-                                start_rep, piece_rep, move, settles, jump_from, jump_to, jumps)
+                                start_rep, piece_rep, move, settles, jump_from, jump_to, jumps,
+                                ramp)
     return Plan(layout, lit, runs, drawn, stroke_intensity,
                 drawn_length_mm=float(lengths.sum()),
                 moving_samples=int(piece_n.sum()),
@@ -297,15 +323,79 @@ def _reordered_xy(arrays: list, order: np.ndarray, flip: np.ndarray):
     return np.concatenate(xs), np.concatenate(ys)
 
 
+def _turn_caps(px, py, is_last, sharp, acc) -> np.ndarray:
+    """(P - 1,) the spacing each segment may be drawn at for the gentle corners at its ends:
+    a turn of angle t passed at speed v changes the velocity by 2 v sin(t / 2) within a
+    sample, which must stay within acc there. Stroke ends and sharp corners (where the spot
+    stops) set no cap."""
+    P = len(px)
+    cap = np.full(P, np.inf)
+    inner = np.ones(P, dtype=bool)
+    inner[0] = inner[-1] = False
+    inner[is_last] = False
+    inner[1:][is_last[:-1]] = False             # a stroke's first vertex
+    inner &= ~sharp
+    i = np.flatnonzero(inner)
+    if i.size:
+        d_in = np.column_stack([px[i] - px[i - 1], py[i] - py[i - 1]])
+        d_out = np.column_stack([px[i + 1] - px[i], py[i + 1] - py[i]])
+        half = np.radians(turn_deg(d_in, d_out)) / 2.0
+        with np.errstate(divide="ignore"):
+            cap[i] = np.where(half > 0, acc[i] / (2.0 * np.sin(half)), np.inf)
+    return np.minimum(cap[:-1], cap[1:])
+
+
+def _ramped(piece_len, piece_n, a_piece, runs_on):
+    """Acceleration-limited pieces: (samples per piece, (v_in, v_out, r_in, r_out, step)).
+
+    The speed a piece was planned at (length / samples) is its cruise speed at most. Where a
+    piece runs on into the next (`runs_on[p]`: piece p joins piece p - 1 without a stop) the
+    junction speed is the slower cruise; elsewhere the spot is at rest. Junction speeds are
+    then brought within reach: w_k = v_k^2 <= w_(k-1) + 2 a L over the piece between them,
+    forwards and backwards, each pass one running minimum (w_k = S_k + min_(m<=k) (C_m -
+    S_m), S the running sum of 2 a L). Each piece speeds up evenly from v_in to its peak
+    speed (its cruise, or less on a piece too short to reach it), holds it, and slows to
+    v_out, in whole samples; its step is then worked out so the piece ends exactly at its
+    end."""
+    L = np.asarray(piece_len, dtype=float)
+    P = len(L)
+    a = np.maximum(np.asarray(a_piece, dtype=float), 1e-12)
+    cruise = L / np.maximum(piece_n, 1)
+    cap = np.zeros(P + 1)                          # squared junction speeds, k = 0 .. P
+    join = np.flatnonzero(runs_on)
+    cap[join] = np.minimum(cruise[join - 1], cruise[join]) ** 2
+    reach = 2.0 * a * L
+    S = np.concatenate([[0.0], np.cumsum(reach)])
+    fwd = S + np.minimum.accumulate(cap - S)
+    R = np.concatenate([np.cumsum(reach[::-1])[::-1], [0.0]])
+    bwd = R + np.minimum.accumulate((cap - R)[::-1])[::-1]
+    w = np.maximum(np.minimum(fwd, bwd), 0.0)
+    v_in, v_out = np.sqrt(w[:-1]), np.sqrt(w[1:])
+    peak = np.minimum(cruise, np.sqrt(a * L + (v_in ** 2 + v_out ** 2) / 2.0))
+    peak = np.maximum(peak, np.maximum(v_in, v_out))
+    r_in = np.ceil((peak - v_in) / a - 1e-9).astype(np.int64)
+    r_out = np.ceil((peak - v_out) / a - 1e-9).astype(np.int64)
+    rest = L - (v_in + peak) * r_in / 2.0 - (peak + v_out) * r_out / 2.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        c = np.where(peak > 0, np.ceil(np.maximum(rest, 0.0) / peak - 1e-9), 0.0).astype(np.int64)
+    n = np.maximum(r_in + c + r_out, 1)
+    c = n - r_in - r_out
+    den = (r_in + r_out) / 2.0 + c
+    step = np.where(den > 0, (L - (v_in * r_in + v_out * r_out) / 2.0) / np.maximum(den, 1e-300),
+                    0.0)
+    return n, (v_in, v_out, r_in.astype(float), r_out.astype(float), np.maximum(step, 0.0))
+
+
 def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_rep, piece_rep,
-            move, settles, jump_from, jump_to, jumps):
+            move, settles, jump_from, jump_to, jumps, ramp=None):
     """The frame's sample blocks in drawing order (per stroke a start block, its pieces, then
     its blanked jump) as a Layout, with the lit flags and the lit/blanked run lengths."""
     S = len(first)
     blank_size = move + settles
     blk_key = np.concatenate([2 * first, 2 * a + 1, 2 * last + 1])
     blk_base = np.concatenate([s[first], s[a], s[last]])
-    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1), np.zeros(S)])
+    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1) if ramp is None
+                               else ramp[4], np.zeros(S)])
     blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n, np.zeros(S, dtype=np.int64)])
     blk_rep = np.concatenate([start_rep, piece_rep, blank_size]).astype(np.int64)
     blk_stroke = np.concatenate([np.arange(S), piece_stroke, np.arange(S)])
@@ -313,6 +403,10 @@ def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_r
     o = np.argsort(blk_key, kind="stable")
     blk_base, blk_step, blk_move, blk_rep, blk_stroke, blk_lit = (
         blk_base[o], blk_step[o], blk_move[o], blk_rep[o], blk_stroke[o], blk_lit[o])
+    blk_ramp = None
+    if ramp is not None:
+        z = np.zeros(S)
+        blk_ramp = tuple(np.concatenate([z, r, z])[o] for r in ramp[:4])
     blk_size = blk_move + blk_rep
     blk_end = np.cumsum(blk_size)
     lit_count = np.bincount(blk_stroke[blk_lit], weights=blk_size[blk_lit],
@@ -331,5 +425,5 @@ def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_r
     blank[~moving] = np.repeat(jump_to, settles, axis=0)
     blank_x, blank_y = np.ascontiguousarray(blank[:, 0]), np.ascontiguousarray(blank[:, 1])
     layout = Layout(s, px, py, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
-                    at, blank_x, blank_y)
+                    at, blank_x, blank_y, blk_ramp)
     return layout, lit, runs

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["GAP", "CHUNK", "arc_axis", "Layout"]
+__all__ = ["GAP", "CHUNK", "arc_axis", "Layout", "ramp_distance"]
 
 GAP = 1.0       # arc-length gap between strokes on the global axis (any positive number works)
 CHUNK = 1 << 14     # vertices or samples worked on at a time
@@ -76,6 +76,11 @@ class Layout:
         base[b] + step[b] * min(k + 1, move[b]).
     at, blank_x, blank_y : (N_blank,) arrays
         The blanked samples and their positions (on the jumps), mm.
+    ramp : (v_in, v_out, r_in, r_out) of (B,) arrays, or None
+        An acceleration-limited block starts at speed v_in (axis units per sample), changes
+        speed evenly over its first r_in samples to its step, cruises, and changes evenly to
+        v_out over its last r_out samples (`ramp_distance`); its step is then the cruise
+        speed. None: every block moves at its step from its first sample.
     """
 
     s: np.ndarray
@@ -89,6 +94,7 @@ class Layout:
     at: np.ndarray
     blank_x: np.ndarray
     blank_y: np.ndarray
+    ramp: tuple | None = None
 
     def positions(self, c0: int, c1: int) -> tuple[np.ndarray, np.ndarray]:
         """x and y (mm) of samples c0 .. c1 - 1, by linear interpolation along the axis."""
@@ -98,8 +104,12 @@ class Layout:
         mult = np.arange(c0 + 1, c1 + 1)                        # k + 1 ...
         mult -= np.repeat(self.start[b0:b1], sizes)
         np.minimum(mult, np.repeat(self.move[b0:b1], sizes), out=mult)     # ... held at n_move
-        param = np.repeat(self.step[b0:b1], sizes)
-        param *= mult
+        if self.ramp is None:
+            param = np.repeat(self.step[b0:b1], sizes)
+            param *= mult
+        else:
+            param = ramp_distance(mult, *(np.repeat(a[b0:b1], sizes) for a in (
+                self.step, self.move, *self.ramp)))
         param += np.repeat(self.base[b0:b1], sizes)
         x = np.interp(param, self.s, self.px)
         y = np.interp(param, self.s, self.py)
@@ -109,3 +119,27 @@ class Layout:
             x[j] = self.blank_x[i0:i1]
             y[j] = self.blank_y[i0:i1]
         return x, y
+
+
+def ramp_distance(j, step, move, v_in, v_out, r_in, r_out) -> np.ndarray:
+    """Distance moved after j samples (1 .. move, elementwise) by a block that changes speed
+    evenly from v_in to `step` over r_in samples, cruises at `step`, and changes evenly to
+    v_out over its last r_out samples: a speed that changes by the same amount every sample,
+    as an acceleration-limited move does. With r_in = r_out = 0 it is step * j.
+
+    Examples
+    --------
+    >>> j = np.arange(1, 7)
+    >>> ramp_distance(j, 2.0, 6, 0.0, 0.0, 2, 2).tolist()      # 6 samples, 8 units
+    [0.5, 2.0, 4.0, 6.0, 7.5, 8.0]
+    """
+    j = np.asarray(j, dtype=float)
+    r_in_s = np.maximum(r_in, 1)
+    r_out_s = np.maximum(r_out, 1)
+    d_in = (v_in + step) * r_in / 2.0                 # covered by the end of the first ramp
+    tail = move - r_out                               # where the last ramp begins
+    d_tail = d_in + step * (tail - r_in)
+    q = j - tail
+    return np.where(j <= r_in, v_in * j + (step - v_in) * j * j / (2.0 * r_in_s),
+                    np.where(j <= tail, d_in + step * (j - r_in),
+                             d_tail + step * q - (step - v_out) * q * q / (2.0 * r_out_s)))

@@ -105,7 +105,7 @@ class Plan:
         layout = Layout(lay.s, lay.px, lay.py, lay.start, end, lay.move, lay.step, lay.base,
                         np.concatenate([lay.at, np.arange(n, n + E)]),
                         np.concatenate([lay.blank_x, points_mm[:, 0]]),
-                        np.concatenate([lay.blank_y, points_mm[:, 1]]))
+                        np.concatenate([lay.blank_y, points_mm[:, 1]]), lay.ramp)
         runs = self.runs.copy()
         runs[-1] += E
         return Plan(layout, np.concatenate([self.lit, np.zeros(E, dtype=bool)]), runs,
