@@ -208,3 +208,41 @@ def test_gentle_corners_of_a_second_order_deflection_slow_down_with_the_turn():
     assert speeds[0] == pytest.approx(cruise, rel=0.02)           # straight on: full speed
     assert speeds[1] > speeds[2] > speeds[3]                      # slower the more it turns
     assert speeds[3] < 0.9 * cruise                                # slowed where it turns most
+
+
+def test_without_compensation_corners_wait_for_the_lag_longer_the_sharper_the_turn():
+    # Drawn for a 300 us lag with the compensation off, the plan cannot square a corner: it
+    # dwells until the lagging spot has followed the turn to within the spot size. First
+    # order, by hand: after a turn the lag's velocity error dv = 2 v sin(turn / 2) leaves a
+    # position error tau dv exp(-t / tau), so t = tau ln(tau dv / spot) (closed-form step
+    # response). Reference for the spot: scipy.signal.lsim of 1 / (tau s + 1).
+    spot = 0.1
+    v = 20000.0
+    prof = make_profile(output={"band_limited": False}, beam={"spot_mm": spot},
+                        response={"tau_us": [TAU * 1e6] * 2})
+    turns = [45.0, 90.0, 135.0, 180.0]
+    pts, heading, p = [np.array([-30.0, -25.0])], 0.0, np.array([-30.0, -25.0])
+    for t, length in zip(turns + [0.0], [12.0] * len(turns) + [5.0]):   # (the last run
+        # stops short of the corner it doubles back towards)
+        p = p + length * np.array([np.cos(np.radians(heading)), np.sin(np.radians(heading))])
+        pts.append(p)
+        heading += t
+    line = np.array(pts)
+    frame = render(polylines(line), prof, rate=RATE, speed=v, compensate=False)
+    x, y, lit = frame.plan.x, frame.plan.y, frame.plan.lit
+    seen = _spot_mm(frame, prof, LAG)
+    dwell = []
+    for c, t in zip(line[1:-1], turns):
+        at = np.flatnonzero(lit & (np.hypot(x - c[0], y - c[1]) < 1e-9))
+        dwell.append(len(at))
+        want = TAU * np.log(TAU * 2 * v * np.sin(np.radians(t) / 2) / spot) * RATE
+        assert len(at) >= want, (t, len(at), want)
+        # the spot (lsim) is within the spot size of the corner when the dwell ends
+        assert np.hypot(*(seen[at[-1]] - c)) < spot * 1.5, t
+    assert dwell == sorted(dwell) and dwell[-1] > dwell[0]      # longer the sharper the turn
+    ideal = render(polylines(line), make_profile(output={"band_limited": False}), rate=RATE,
+                   speed=v)
+    x0, y0 = ideal.plan.x, ideal.plan.y
+    c = line[2]
+    plain = int(np.sum(ideal.plan.lit & (np.hypot(x0 - c[0], y0 - c[1]) < 1e-9)))
+    assert plain < dwell[1]                  # control: an ideal deflection dwells the default

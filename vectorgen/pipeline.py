@@ -319,6 +319,16 @@ class Renderer:
         self.jumps = self._jump_model()
         self.speed_cap = self._speed_cap(self.rate) if settings.compensate else None
         self.accel = self._accel_limit(self.rate) if settings.compensate else None
+        self.settle = None
+        if self.response.order > 0 and not settings.compensate:
+            # without compensation the plan cannot square a corner: it waits for the lag
+            from .response import corner_dwell_samples
+
+            resp, rate, spot = self.response, self.rate, self.profile.beam.spot_mm
+
+            def settle(turn_deg, speed_mm_s):
+                return corner_dwell_samples(turn_deg, speed_mm_s, resp, rate, spot)
+            self.settle = settle
         if settings.refresh is not None:
             self.target = max(1, int(round(self.rate / settings.refresh)))
         else:
@@ -538,7 +548,7 @@ class Renderer:
         free = self.target is None
         return plan_frame(strokes, timing, self.target, self.settings.ordering, self.jumps,
                           self.speed_cap if free else None, ordered=ordered,
-                          accel=self.accel if free else None)
+                          accel=self.accel if free else None, settle=self.settle)
 
     def _faster(self, strokes, plan, ordered):
         """Re-plan at the writing speed that brings the frame to refresh_target_hz, at most the

@@ -42,7 +42,7 @@ CAP_BREAK = 1.25        # ... and a piece ends where the allowed speed changes b
 
 def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
                ordering: str = "tour", jumps=None, speed_cap=None, ordered=None,
-               accel=None) -> Plan:
+               accel=None, settle=None) -> Plan:
     """The beam plan for one frame.
 
     Parameters
@@ -76,6 +76,10 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         corner_angle_deg, passed without stopping) is taken no faster than its change of
         direction allows in one sample, 2 v sin(turn / 2) <= accel: the slow-down grows with
         the turn (none on a straight run). Needs `speed_cap`.
+    settle : callable, optional
+        For a lagging deflection drawn without compensation: ``settle(turn_deg, speed_mm_s)
+        -> samples`` the spot needs to follow a turn to within its size; sharp corners and
+        stroke ends dwell at least that long (`dwell.dwells`).
     ordered : tuple, optional
         `order_frame`'s answer for these strokes, when the caller already has it (it then
         checked the frame's size with `check_frame_size` before ordering; it is not checked
@@ -153,8 +157,12 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
     a, b = a[keep], b[keep]
     piece_stroke = np.searchsorted(offs, a, side="right") - 1
     piece_len = s[b] - s[a]
+    follow = None
+    if settle is not None:
+        def follow(turn, speed=timing.spacing_mm * timing.rate):
+            return settle(turn, speed)
     start_rep, piece_rep, closed_sharp = dwells(px, py, first, last, lengths, piece_stroke,
-                                                is_last[b], timing)
+                                                is_last[b], timing, b, follow)
     piece_rep[soft[b]] = 0
 
     # Blanked jumps from each stroke's end to the next stroke's start (the last one wraps).

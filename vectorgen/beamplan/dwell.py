@@ -27,8 +27,15 @@ def turn_deg(d_in: np.ndarray, d_out: np.ndarray) -> np.ndarray:
     return np.degrees(np.arccos(np.clip(cosang, -1.0, 1.0)))
 
 
-def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing):
+def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing, piece_end=None,
+           settle=None):
     """Dwell samples of a frame's strokes.
+
+    `settle`, for a lagging deflection drawn without compensation: ``settle(turn_deg) ->
+    samples`` the spot needs to follow a turn to within its size; each sharp corner (at the
+    vertices `piece_end` of the pieces that are not a stroke's last) and each open stroke's
+    end (the spot stops: as a turn of 60 degrees, whose change of velocity is the speed)
+    then dwells at least that long, so the dwell grows with the turn.
 
     Returns
     -------
@@ -51,5 +58,15 @@ def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing):
                                     at(first[cs] + 1) - at(first[cs])) > timing.corner_angle_deg
     end_rep = np.where(closed, np.where(closed_sharp, timing.corner_dwell, 0), timing.end_dwell)
     piece_rep = np.where(piece_last, end_rep[piece_stroke], timing.corner_dwell)
+    if settle is not None and len(piece_rep):
+        b = np.asarray(piece_end)
+        corner = np.flatnonzero(~piece_last)
+        if corner.size:
+            def at(i):
+                return np.column_stack([px[i], py[i]])
+            turn = turn_deg(at(b[corner]) - at(b[corner] - 1), at(b[corner] + 1) - at(b[corner]))
+            piece_rep[corner] = np.maximum(piece_rep[corner], settle(turn))
+        stop = np.flatnonzero(piece_last & ~closed[piece_stroke])
+        piece_rep[stop] = np.maximum(piece_rep[stop], settle(np.full(len(stop), 60.0)))
     start_rep = np.where(is_dot, timing.dot_dwell, np.where(closed, 1, timing.end_dwell))
     return start_rep.astype(np.int64), piece_rep.astype(np.int64), closed_sharp
