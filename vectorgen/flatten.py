@@ -40,14 +40,16 @@ def bezier_points(ctrl: np.ndarray, t: np.ndarray) -> np.ndarray:
 _TURN_STEPS = 32
 
 
+def _along_x(dx: np.ndarray, dy: np.ndarray) -> np.ndarray:
+    """dx with directions of zero length made +x: np.angle(0) is 0, so the tangent estimate
+    has always counted such a direction as pointing along +x (a curve whose control point
+    sits on its end point is given a little more turning than it has, never less)."""
+    zero = (dx == 0) & (dy == 0)
+    return np.where(zero, 1.0, dx) if zero.any() else dx
+
+
 def _turn(dx0, dy0, dx1, dy1) -> np.ndarray:
-    """|angle| from one direction to the next, in (0, pi]. A direction of zero length counts
-    as +x (so a curve whose control point sits on its end point is given a little more
-    turning than it has, never less)."""
-    z0 = (dx0 == 0) & (dy0 == 0)
-    z1 = (dx1 == 0) & (dy1 == 0)
-    if z0.any() or z1.any():
-        dx0, dx1 = np.where(z0, 1.0, dx0), np.where(z1, 1.0, dx1)
+    """|angle| from one direction to the next, in [0, pi]."""
     return np.abs(np.arctan2(dx0 * dy1 - dy0 * dx1, dx0 * dx1 + dy0 * dy1))
 
 
@@ -60,11 +62,14 @@ def _bezier_turn_counts(ctrl: np.ndarray) -> np.ndarray:
     d = np.diff(ctrl, axis=1)           # derivative control points (up to the degree factor)
     dx, dy = d.real, d.imag
     if ctrl.shape[1] == 3:
-        turn = _turn(dx[:, 0], dy[:, 0], dx[:, 1], dy[:, 1])
+        turn = _turn(_along_x(dx[:, 0], dy[:, 0]), dy[:, 0], _along_x(dx[:, 1], dy[:, 1]),
+                     dy[:, 1])
     else:
         t = np.linspace(0.0, 1.0, _TURN_STEPS + 1)
-        w = np.stack([(1 - t) ** 2, 2 * (1 - t) * t, t ** 2])          # (3, 33)
-        sx, sy = dx @ w, dy @ w                                         # (m, 33)
+        w0, w1, w2 = (1 - t) ** 2, 2 * (1 - t) * t, t ** 2
+        sx = dx[:, :1] * w0 + dx[:, 1:2] * w1 + dx[:, 2:] * w2             # (m, 33)
+        sy = dy[:, :1] * w0 + dy[:, 1:2] * w1 + dy[:, 2:] * w2
+        sx = _along_x(sx, sy)
         turn = _turn(sx[:, :-1], sy[:, :-1], sx[:, 1:], sy[:, 1:]).sum(axis=1)
     return np.ceil(np.degrees(turn) / MAX_TURN_DEG).astype(np.int64)
 
@@ -248,18 +253,39 @@ def flatten_table(table: SegmentTable, tol: float) -> tuple[np.ndarray, np.ndarr
     starts = np.asarray(table.starts)
     out[offsets[:-1], 0], out[offsets[:-1], 1] = starts.real, starts.imag
     for kind, n in counts.items():
+        rows, dest_of = table.data[kind], seg_dest[kinds == kind]
         if kind == 4:
-            a = table.data[4]
-            x, y = _arc_xy(a[:, 0], a[:, 1].real, a[:, 2].real, a[:, 3].real, a[:, 4].real,
-                           a[:, 5].real, n)
-            last = np.cumsum(n) - 1
-            x[last], y[last] = a[:, 6].real, a[:, 6].imag    # land exactly on each end point
-        else:
-            x, y = _bezier_xy(table.data[kind], n)
-        first = np.cumsum(n) - n
-        dest = np.repeat(seg_dest[kinds == kind] - first, n) + np.arange(len(x))
-        out[dest, 0], out[dest, 1] = x, y
+            rows = np.column_stack([rows[:, 0].real, rows[:, 0].imag, rows[:, 1].real,
+                                    rows[:, 2].real, rows[:, 3].real, rows[:, 4].real,
+                                    rows[:, 5].real, rows[:, 6].real, rows[:, 6].imag])
+        for lo, hi in _chunks(n):
+            nk = n[lo:hi]
+            if kind == 4:
+                a = rows[lo:hi]
+                x, y = _arc_xy(a[:, 0] + 1j * a[:, 1], a[:, 2], a[:, 3], a[:, 4], a[:, 5],
+                               a[:, 6], nk)
+                last = np.cumsum(nk) - 1
+                x[last], y[last] = a[:, 7], a[:, 8]      # land exactly on each end point
+            else:
+                x, y = _bezier_xy(rows[lo:hi], nk)
+            dest = np.repeat(dest_of[lo:hi] - (np.cumsum(nk) - nk), nk) + np.arange(len(x))
+            out[dest, 0], out[dest, 1] = x, y
     return out, offsets
+
+
+_CHUNK_POINTS = 1 << 15
+
+
+def _chunks(n: np.ndarray):
+    """(lo, hi) ranges of segments with about _CHUNK_POINTS points each: evaluated a chunk
+    at a time, the temporary arrays stay small, in cache and reused (a whole drawing's
+    temporaries at once are fresh memory, a page fault per 4 KiB)."""
+    ends = np.cumsum(n)
+    total = int(ends[-1]) if len(n) else 0
+    cuts = np.searchsorted(ends, np.arange(_CHUNK_POINTS, total, _CHUNK_POINTS)).tolist()
+    bounds = [0] + [c + 1 for c in cuts if c + 1 < len(n)] + [len(n)]
+    bounds = sorted(set(bounds))
+    return list(zip(bounds[:-1], bounds[1:]))
 
 
 def circle_points(radius: float, center=(0.0, 0.0), tolerance_mm: float = 0.02) -> np.ndarray:
