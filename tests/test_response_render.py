@@ -246,3 +246,19 @@ def test_without_compensation_corners_wait_for_the_lag_longer_the_sharper_the_tu
     c = line[2]
     plain = int(np.sum(ideal.plan.lit & (np.hypot(x0 - c[0], y0 - c[1]) < 1e-9)))
     assert plain < dwell[1]                  # control: an ideal deflection dwells the default
+
+
+def test_a_point_within_reach_whose_compensation_runs_out_is_refused_as_such():
+    # a flat ellipse out to 98 % of full scale drawn at 400 m/s through a 300 us lag: even at
+    # the slowest the drive limit lets a stroke creep (5 % of the speed, 20 m/s), the drive
+    # v = u + tau du/dt (the coil law, V = R i + L di/dt) passes full scale near its far
+    # ends; the point itself is within reach, so the message blames the compensation
+    from vectorgen.errors import FullScaleError
+
+    prof = make_profile(output={"band_limited": False}, response={"tau_us": [300, 300]},
+                        deflection={"matrix_mm": [[50.5, 0.0], [0.0, 40.4]]})
+    t = np.linspace(0, 2 * np.pi, 400)
+    flat = polylines(np.column_stack([49.5 * np.cos(t), 0.2 * np.sin(t)]))
+    with pytest.raises(FullScaleError, match=r"within reach \(\+0\.98.*lower the writing speed"):
+        render(flat, prof, rate=RATE, speed=400000.0)
+    render(flat, prof, rate=RATE, speed=20000.0)          # control: at 20 m/s it is drawn

@@ -27,9 +27,11 @@ def correct(plan, model: DeflectionModel) -> np.ndarray:
     return check_full_scale(model.drive_from_xy(plan.x, plan.y), plan)
 
 
-def check_full_scale(drive: np.ndarray, plan) -> np.ndarray:
+def check_full_scale(drive: np.ndarray, plan, before: np.ndarray | None = None) -> np.ndarray:
     """The drive, if every sample is within full scale (rounding within FULL_SCALE_SLACK
     removed); else a `FullScaleError` naming the first place in the drawing that is beyond.
+    `before`: the drive ahead of the stage chain; where it was within full scale, the error
+    says the stages' compensation asks for the rest.
 
     Examples
     --------
@@ -43,6 +45,12 @@ def check_full_scale(drive: np.ndarray, plan) -> np.ndarray:
     if over.any():
         i = int(np.argmax(over.any(axis=1)))
         axis = 0 if over[i, 0] else 1
+        if before is not None and abs(before[i, axis]) <= 1.0:
+            raise FullScaleError(
+                f"drive {'xy'[axis]} = {drive[i, axis]:+.4f} is beyond full scale "
+                f"{_where(plan, i)}: the point is within reach ({before[i, axis]:+.4f}) but "
+                f"the compensation of the hardware asks for more drive than is left there "
+                f"(lower the writing speed, or draw that part further in)")
         raise FullScaleError(f"drive {'xy'[axis]} = {drive[i, axis]:+.4f} is beyond full scale "
                              f"{_where(plan, i)}: the profile's deflection cannot reach that "
                              f"point (shrink the drawing or the usable area)")
@@ -228,7 +236,9 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
 
 def _whole(plan, model, chain, cmap, rate, true_peak=False, drive=None):
     if drive is None:
-        drive = check_full_scale(chain.frame(model.drive_from_xy(plan.x, plan.y), rate), plan)
+        corrected = model.drive_from_xy(plan.x, plan.y)
+        drive = check_full_scale(chain.frame(corrected, rate), plan,
+                                 None if chain.pointwise else corrected)
     sig = np.empty((len(drive), cmap.channels), dtype=np.float32)
     cmap.write_xy(sig, drive)
     if cmap.has_z:

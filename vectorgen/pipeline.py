@@ -660,7 +660,7 @@ class Renderer:
             trial = plan.with_tail(tail_mm, 3, length)
             d = self.model.drive_from_xy(trial.x, trial.y)
             try:
-                final = check_full_scale(self.chain.frame(d, self.rate), trial)
+                final = check_full_scale(self.chain.frame(d, self.rate), trial, d)
                 tp = check_true_peak(final, trial) if self.checks_true_peak else None
             except FullScaleError as exc:
                 last_err = exc
