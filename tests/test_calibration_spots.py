@@ -23,11 +23,11 @@ CORNERS = ("r1c1", "r1c17", "r13c1", "r13c17")
 
 @pytest.fixture(scope="module")
 def grid(tmp_path_factory):
-    """A 13 x 17 grid pattern rendered with the uncalibrated bench profile, its empty sheet, and
-    a photo of what the true tube shows."""
+    """A 13 x 17 grid pattern of crosses rendered with the uncalibrated bench profile, its empty
+    sheet, and a photo of what the true tube shows."""
     folder = tmp_path_factory.mktemp("spots")
     base = write_profile(folder / "bench.toml", bench_profile())
-    assert main(["pattern", "grid", "--rows", "13", "--cols", "17", "-o",
+    assert main(["pattern", "grid", "--rows", "13", "--cols", "17", "--mark", "cross", "-o",
                  str(folder / "grid.wav"), "--sheet", str(folder / "grid.csv"), "--profile",
                  base, "--channels", "3", "-q"]) == 0
     sig, _, _ = read_signal(str(folder / "grid.wav"))
@@ -175,7 +175,8 @@ def test_a_box_pattern_photo_fills_five_rows(tmp_path):
 
 def test_dot_marks_are_found_as_they_are(tmp_path):
     base = write_profile(tmp_path / "bench.toml", bench_profile())
-    assert main(["pattern", "grid", "--mark", "dot", "-o", str(tmp_path / "dots.wav"),
+    assert main(["pattern", "grid", "--rows", "7", "--cols", "9", "--mark", "dot", "-o",
+                 str(tmp_path / "dots.wav"),
                  "--sheet", str(tmp_path / "dots.csv"), "--profile", base, "--channels", "3",
                  "-q"]) == 0
     sig, _, _ = read_signal(str(tmp_path / "dots.wav"))
