@@ -179,18 +179,23 @@ def test_fit_writes_the_largest_area_the_fitted_tube_reaches_by_brute_force(benc
     assert np.abs(stale.land(u) - true.land(u)).max() > 0.5
 
 
-def test_after_the_fit_a_full_area_grid_previews_and_keeping_the_old_area_does_not(bench,
-                                                                                    capsys):
+def test_after_the_fit_a_full_area_frame_previews_and_keeping_the_old_area_does_not(bench,
+                                                                                     capsys):
     folder, base = bench
-    assert main(["preview", "--shape", "grid", "--profile", str(folder / "tube.toml"), "-o",
-                 str(folder / "grid.png"), "-q"]) == 0
+    # a rectangle round the whole page, fitted to the page: its edges lie on the usable area's
+    edge = folder / "edge.svg"
+    edge.write_text('<svg xmlns="http://www.w3.org/2000/svg" width="160" height="120" '
+                    'viewBox="0 0 160 120"><rect x="0" y="0" width="160" height="120" '
+                    'fill="none" stroke="black"/></svg>')
+    assert main(["preview", str(edge), "--fit", "page", "--profile", str(folder / "tube.toml"),
+                 "-o", str(folder / "edge.png"), "-q"]) == 0
     # control: the same fit with the old [screen] kept is refused beyond full scale
     assert main(["fit", str(folder / "grid.csv"), "-o", str(folder / "kept.toml"), "--base",
                  base, "--area", "keep", "-q"]) == 0
     err = capsys.readouterr().err
     assert "beyond full scale" in err
-    assert main(["preview", "--shape", "grid", "--profile", str(folder / "kept.toml"), "-o",
-                 str(folder / "kept.png"), "-q"]) == 2
+    assert main(["preview", str(edge), "--fit", "page", "--profile", str(folder / "kept.toml"),
+                 "-o", str(folder / "kept.png"), "-q"]) == 2
     assert "beyond full scale" in capsys.readouterr().err
     assert profile_tables(folder / "kept.toml")["screen"]["width_mm"] == FACE_MM[0]
 
