@@ -328,3 +328,23 @@ def test_dots_only_frame_warns_of_a_stationary_spot():
     assert dots.plan.drawn_length_mm == 0
     line = render(polylines([(0.0, 0.0)], [(-20.0, 0.0), (20.0, 0.0)]))
     assert not any("stationary spot" in n for n in line.warnings)
+
+
+def test_the_too_slow_warning_gives_the_refresh_of_the_frame_as_written():
+    # Lines along the edge of the usable area, many of them: at the fastest writing speed
+    # the interface's overshoot (true peak, BS.1770-4 Annex 2 style, band-limited profile)
+    # passes full scale, so the speed backs off; the warning must then say the refresh of the
+    # frame that is written (rate / samples), and why the speed is lower
+    import re
+    import warnings
+
+    prof = make_profile()                                   # band-limited: true peak checked
+    w, h = prof.screen.half_extent
+    lines = [[(-w, y), (w, y)] for y in np.linspace(-h, h, 41)]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = _render(polylines(*lines), prof)
+    said = [str(c.message) for c in caught if "target" in str(c.message)]
+    assert said, [str(c.message) for c in caught]
+    hz = float(re.search(r"refresh ([0-9.]+) Hz", said[0]).group(1))
+    assert hz == pytest.approx(frame.rate / frame.samples, abs=0.06)

@@ -432,8 +432,7 @@ class Renderer:
         if auto:
             plan, reached = self._faster(clipped, plan, ordered)
             extra["writing_speed_auto"] = True
-            if not reached:
-                notes.append(self._too_slow(clipped, plan))
+        backed_off = None
         while True:
             try:
                 signal, peak, drive, balanced = self._signal(plan, notes, extra)
@@ -445,8 +444,12 @@ class Renderer:
                 if not auto or speed <= self.profile.beam.writing_speed_mm_per_s * 1.01:
                     raise
                 slower = max(self.profile.beam.writing_speed_mm_per_s, 0.8 * speed)
+                backed_off = slower
                 plan = self._plan(clipped, Timing.from_beam(self.profile.beam, self.rate,
                                                             slower), ordered)
+        if auto and not reached:
+            # (said of the frame as it is written: the speed may have backed off above)
+            notes.insert(0, self._too_slow(clipped, plan, backed_off))
         plan = balanced
         del clipped, ordered
         if self.z_shift and self.cmap.has_z:
@@ -568,9 +571,11 @@ class Renderer:
                 break
         return plan, plan.samples <= want
 
-    def _too_slow(self, strokes, plan) -> str:
+    def _too_slow(self, strokes, plan, backed_off=None) -> str:
         """The warning for a frame that cannot reach the refresh target, with about the refresh
-        each fix would give (worked out from the frame's make-up: drawing, jumps, dwells)."""
+        each fix would give (worked out from the frame's make-up: drawing, jumps, dwells).
+        `backed_off`: the writing speed (mm/s) the frame fell back to because a faster one
+        went beyond full scale."""
         b = self.profile.beam
         rate = self.rate
         hz = rate / plan.samples
@@ -592,6 +597,9 @@ class Renderer:
         fixes.append("or draw less")
         limit = (f"the fastest writing speed ({b.max_writing_speed_mm_per_s / 1000:g} m/s)"
                  if self.speed_cap is None else "the fastest the deflection's lag allows")
+        if backed_off is not None:
+            limit = (f"{backed_off / 1000:.3g} m/s, the fastest writing speed that stays within "
+                     f"full scale")
         return (f"refresh {hz:.1f} Hz is below the {b.refresh_target_hz:g} Hz target even at "
                 f"{limit}: " + "; ".join(fixes))
 
