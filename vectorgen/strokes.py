@@ -16,7 +16,7 @@ import numpy as np
 from .errors import InputError
 
 __all__ = ["COORD_LIMIT", "StrokeSet", "Strokes", "check_finite", "clean", "concat",
-           "strokes_from_polylines"]
+           "repeated_points", "strokes_from_polylines"]
 
 # Coordinates beyond this (in mm, or SVG user units before fitting) are refused as nonsense.
 COORD_LIMIT = 1e9
@@ -95,7 +95,17 @@ class Strokes:
 
     def transformed(self, matrix: np.ndarray, offset=(0.0, 0.0)) -> "Strokes":
         """Affine map p -> matrix @ p + offset (matrix 2 x 2)."""
-        pts = self.points @ np.asarray(matrix, dtype=float).T + np.asarray(offset, dtype=float)
+        m = np.asarray(matrix, dtype=float)
+        e, f = np.asarray(offset, dtype=float)
+        x, y = self.points[:, 0], self.points[:, 1]
+        pts = np.empty_like(self.points)
+        # column by column into one new array (broadcasting over rows of two is slower)
+        for k, (c0, c1, add) in enumerate(((m[0, 0], m[0, 1], e), (m[1, 0], m[1, 1], f))):
+            col = pts[:, k]
+            np.multiply(x, c0, out=col)
+            if c1 != 0:
+                col += y * c1
+            col += add
         return Strokes(pts, self.offsets.copy(), self.intensity.copy(), list(self.labels))
 
     def bounds(self) -> tuple[float, float, float, float]:
@@ -152,18 +162,38 @@ def check_finite(strokes: Strokes, what: str = "drawing") -> None:
         raise InputError(f"{what}: stroke intensity must be between 0 and 1")
 
 
+def repeated_points(points: np.ndarray, offsets: np.ndarray) -> np.ndarray:
+    """Indices of the points that repeat the point before them in the same stroke.
+
+    Examples
+    --------
+    >>> pts = np.array([[0.0, 0], [0, 0], [1, 0], [1, 0], [1, 0], [2, 0]])
+    >>> repeated_points(pts, np.array([0, 3, 6])).tolist()
+    [1, 4]
+    """
+    if len(points) < 2:
+        return np.zeros(0, dtype=np.int64)
+    x, y = points[:, 0], points[:, 1]
+    same = x[1:] == x[:-1]                                   # (all(axis=1) is slow)
+    same &= y[1:] == y[:-1]
+    idx = np.flatnonzero(same) + 1
+    if len(idx):
+        idx = idx[~np.isin(idx, offsets[:-1])]            # a stroke's first point stays
+    return idx
+
+
 def clean(strokes: Strokes) -> Strokes:
     """Drop consecutive duplicate points inside each stroke (a stroke keeps at least one)."""
     pts, offs = strokes.points, strokes.offsets
-    if len(pts) < 2:
+    drop = repeated_points(pts, offs)
+    if not len(drop):
         return strokes
-    same = np.zeros(len(pts), dtype=bool)
-    x, y = pts[:, 0], pts[:, 1]
-    np.logical_and(x[1:] == x[:-1], y[1:] == y[:-1], out=same[1:])   # (all(axis=1) is slow)
-    same[offs[:-1]] = False          # a stroke's first point always stays
-    if not same.any():
-        return strokes
-    keep = ~same
-    new_counts = np.add.reduceat(keep.astype(np.int64), offs[:-1]) if len(offs) > 1 else []
-    new_offs = np.concatenate([[0], np.cumsum(new_counts)]).astype(np.int64)
-    return Strokes(pts[keep], new_offs, strokes.intensity, strokes.labels)
+    removed = np.bincount(np.searchsorted(offs, drop, side="right") - 1,
+                          minlength=len(offs) - 1)
+    new_offs = np.zeros(len(offs), dtype=np.int64)
+    np.cumsum(np.diff(offs) - removed, out=new_offs[1:])
+    keep = np.ones(len(pts), dtype=bool)
+    keep[drop] = False
+    # (take with indices: a boolean index on the rows of a 2-D array is many times slower)
+    return Strokes(pts.take(np.flatnonzero(keep), axis=0), new_offs, strokes.intensity,
+                   strokes.labels)

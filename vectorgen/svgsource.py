@@ -46,7 +46,7 @@ from .flatten import flatten_table
 from .pathdata import (PathTable, concat_tables, hull_points, select_paths, select_runs,
                        transform_table)
 from .screen import fit_transform
-from .strokes import Strokes, check_finite, clean
+from .strokes import Strokes, check_finite, clean, repeated_points
 from .svgdoc import Document, PathRef, read_document
 from .svgpathdata import tables_of
 from .svgvalues import IDENTITY, BadValue, compose, invert
@@ -313,6 +313,7 @@ class _RootGeometry:
         self.shapes = doc.shapes
         self.table = _root_table([(s.path, s.matrix) for s in doc.shapes])
         hull = hull_points(self.table) if self.table.segments else np.zeros(0, dtype=complex)
+        self._hull_points = hull
         if hull.size and not (np.all(np.isfinite(hull))
                               and np.abs(hull).max() <= COORD_LIMIT_USER):
             bad = int(np.argmax(~np.isfinite(hull) | (np.abs(hull) > COORD_LIMIT_USER)))
@@ -324,7 +325,7 @@ class _RootGeometry:
         self._regions: dict = {}
 
     def hull(self) -> tuple[float, float, float, float]:
-        pts = [hull_points(self.table)] if self.table.segments else []
+        pts = [self._hull_points]
         pts += [t[1][:, 0] + 1j * t[1][:, 1] for t in self.text_lines]
         z = np.concatenate(pts)
         return (float(z.real.min()), float(z.imag.min()), float(z.real.max()),
@@ -336,8 +337,10 @@ class _RootGeometry:
         pts, offsets = _flatten(self.table, tol)
         owner = self.table.run_owner
         special = {i for i, s in enumerate(shapes) if s.dash or s.clips}
-        lens = _run_extent(pts, offsets)
-        zero = lens == 0
+        # runs whose points all coincide (every point after the first repeats the one before)
+        repeats = np.bincount(np.searchsorted(offsets, repeated_points(pts, offsets),
+                                              side="right") - 1, minlength=len(offsets) - 1)
+        zero = repeats == np.diff(offsets) - 1
         if not special and not self.text_lines and not (zero.any()):
             inten = np.array([shapes[i].intensity for i in owner.tolist()], dtype=float)
             labels = [shapes[i].label for i in owner.tolist()]
@@ -439,16 +442,6 @@ class _RootGeometry:
         if x1 <= x0 or y1 <= y0:
             return None                         # SVG 1.1, 7.11: no area, no bounding box
         return float(x0), float(y0), float(x1), float(y1)
-
-
-def _run_extent(pts: np.ndarray, offsets: np.ndarray) -> np.ndarray:
-    """The x + y extent of each run (0 for a run whose points all coincide)."""
-    if len(offsets) < 2:
-        return np.zeros(0)
-    starts = offsets[:-1]
-    x, y = pts[:, 0], pts[:, 1]
-    return (np.maximum.reduceat(x, starts) - np.minimum.reduceat(x, starts)
-            + np.maximum.reduceat(y, starts) - np.minimum.reduceat(y, starts))
 
 
 # --- dashes ----------------------------------------------------------------------------------
