@@ -148,9 +148,30 @@ def spot_section():
         if comp:
             targets.append(("300 us lag, lit points", "<= 0.3 mm", f"{d.max():.3f} mm",
                             d.max() <= 0.3))
-    print(f"  300 us lag, frame time: {samples[True]} samples vs {samples[False]} as drawn "
-          f"(+{100 * (samples[True] / samples[False] - 1):.1f} %)")
-    info.append(("300 us lag, frame-time cost", f"+{100 * (samples[True] / samples[False] - 1):.1f} %"))
+    _p, ideal = _render(card, rate=RATE96, channels=2, output={"band_limited": False},
+                        speed=20000.0)
+    cost = samples[True] / ideal.samples - 1
+    print(f"  300 us lag, frame time: {samples[True]} samples vs {ideal.samples} for an ideal "
+          f"deflection (+{100 * cost:.1f} %; as drawn, waiting at corners: {samples[False]})")
+    info.append(("300 us lag, frame-time cost", f"+{100 * cost:.1f} %"))
+    # a slow second-order amplifier: the strokes are acceleration-limited
+    for fn, zeta in ((1000.0, 0.5), (4000.0, 0.7)):
+        wn = 2 * np.pi * fn
+        prof, f = _render(card, rate=RATE96, channels=2, output={"band_limited": False},
+                          response={"natural_hz": [fn, fn], "damping": [zeta, zeta]},
+                          speed=20000.0)
+        system = sps.lti([wn * wn], [1.0, 2 * zeta * wn, wn * wn])
+        drive = np.tile(f.signal[:, :2].astype(float), (6, 1))
+        tt = np.arange(len(drive)) / RATE96
+        spot = np.column_stack([sps.lsim(system, drive[:, k], tt)[1]
+                                for k in range(2)])[-f.samples:]
+        d = _dist(card, DeflectionModel.from_profile(prof).drive_to_mm(spot)[f.plan.lit])
+        cost = f.samples / ideal.samples - 1
+        print(f"  second order {fn:.0f} Hz, zeta {zeta}, test card at 96 kHz, compensated: lit "
+              f"points {d.max():.3f} mm worst, drive peak {np.abs(f.signal).max():.3f}, frame "
+              f"{f.samples} samples (+{100 * cost:.1f} % over an ideal deflection)")
+        targets.append((f"second order {fn:.0f} Hz, lit points", "<= 0.3 mm", f"{d.max():.3f} mm",
+                        d.max() <= 0.3))
 
     # ordering
     rng = np.random.default_rng(20261202)
