@@ -1,7 +1,8 @@
 """Clipping: strokes cut at the edge of the usable area.
 
 Strokes wholly inside pass untouched (one min/max decides for most drawings); strokes that cross
-the edge are clipped segment by segment with shapely, all segments in one vectorised call.
+the edge are clipped segment by segment, all segments in whole-array operations (the area is a
+rectangle or a disc: `inside_span`).
 """
 
 from __future__ import annotations
@@ -12,7 +13,7 @@ from .errors import InputError
 from .strokes import Strokes, clean
 
 __all__ = ["MAX_POINTS", "MAX_STROKES", "ClippedStrokes", "check_drawing_size", "clip_parts",
-           "clip_to_screen"]
+           "clip_to_screen", "inside_span"]
 
 # Limits on one frame's drawing, checked before any per-stroke work: ordering costs about a
 # fifth of a millisecond per stroke, so a bigger drawing would be slow, and on a tube it would
@@ -46,9 +47,9 @@ def check_drawing_size(strokes) -> None:
 
 def clip_to_screen(strokes: Strokes, screen) -> tuple[Strokes, int]:
     """Cut every stroke at the edge of the usable area. Strokes wholly inside pass untouched
-    (checked with numpy); strokes that cross the edge are clipped segment by segment with
-    shapely, all segments in one vectorised call, and the kept parts joined back into runs in
-    drawing order. (Intersecting a whole stroke as one LineString is set arithmetic: it merges
+    (checked with numpy); strokes that cross the edge are clipped segment by segment, all
+    segments at once (`inside_span`), and the kept parts joined back into runs in drawing
+    order. (Intersecting a whole stroke as one LineString is set arithmetic: it merges
     a stretch drawn twice into one and nodes the stroke where it crosses itself, and GEOS can
     return slivers outside the area for spiky strokes.) Returns the clipped drawing and the
     number of strokes that were cut or dropped."""
@@ -69,9 +70,6 @@ def clip_parts(strokes: Strokes, screen):
     all_in = np.logical_and.reduceat(inside, strokes.offsets[:-1])
     if all_in.all():
         return strokes, 0
-    import shapely
-
-    area = screen.polygon()
     cut = np.flatnonzero(~all_in)
     # The crossing strokes' segments, each closed stroke rotated to start at a vertex outside
     # the area, so that no kept run wraps round its start.
@@ -94,21 +92,18 @@ def clip_parts(strokes: Strokes, screen):
         keep = screen.contains(p0) & screen.contains(p1)   # convex area: wholly in
         todo = np.flatnonzero(~keep)
         if todo.size:
-            parts = shapely.intersection(shapely.linestrings(np.stack([p0[todo], p1[todo]], 1)),
-                                         area)
-            ok = (shapely.get_type_id(parts) == 1) & (shapely.length(parts) > 0)
-            first = shapely.get_coordinates(shapely.get_point(parts[ok], 0))
-            last = shapely.get_coordinates(shapely.get_point(parts[ok], -1))
+            first, last, ok = _inside_parts(screen, p0[todo], p1[todo])
             t = todo[ok]
-            backwards = np.einsum("ij,ij->i", last - first, p1[t] - p0[t]) < 0
-            a[t] = np.where(backwards[:, None], last, first)
-            b[t] = np.where(backwards[:, None], first, last)
+            a[t], b[t] = first, last
             keep[t] = True
         # A run starts at a kept segment that begins a stroke, follows a dropped segment, or
-        # does not start where the previous kept part ended (it re-enters the area).
+        # does not start where the previous kept part ended (it re-enters the area elsewhere;
+        # a stroke that goes out and comes back along one line meets the edge at one point,
+        # worked out from two segments: within a billionth of the screen's size is the same).
         prev_keep = np.concatenate([[False], keep[:-1]])
         new_stroke = np.concatenate([[True], sid[1:] != sid[:-1]])
-        joined = np.concatenate([[False], np.all(a[1:] == b[:-1], axis=1)])
+        same = 1e-9 * max(screen.half_extent)
+        joined = np.concatenate([[False], np.abs(a[1:] - b[:-1]).max(axis=1) <= same])
         start = keep & (new_stroke | ~prev_keep | ~joined)
         kept = np.flatnonzero(keep)
         for rows in (np.split(kept, np.flatnonzero(start[kept])[1:]) if kept.size else []):
@@ -134,6 +129,75 @@ def clip_parts(strokes: Strokes, screen):
         return Strokes.empty(), int((~all_in).sum())
     sids = np.concatenate(sids).astype(np.int64)
     return ClippedStrokes(strokes, chunks, counts, sids), int((~all_in).sum())
+
+
+def _inside_parts(screen, p0: np.ndarray, p1: np.ndarray):
+    """The part of each segment inside the area: (first, last) points of the parts, in the
+    segment's direction, and a mask of the segments that have one. A cut point is worked out
+    from the segment with its ends in a fixed order, so that a stroke which leaves and comes
+    back the same way meets the edge at the very same point both times (and stays one run);
+    the segment's own ends are kept exactly. A part of no length (a segment touching the edge
+    from outside) is none."""
+    swap = (p0[:, 0] > p1[:, 0]) | ((p0[:, 0] == p1[:, 0]) & (p0[:, 1] > p1[:, 1]))
+    c0 = np.where(swap[:, None], p1, p0)
+    c1 = np.where(swap[:, None], p0, p1)
+    t0, t1 = inside_span(screen, c0, c1)
+    ok = t1 > t0
+    c0, c1, t0, t1, swap = c0[ok], c1[ok], t0[ok], t1[ok], swap[ok]
+    d = c1 - c0
+    lo = np.where((t0 > 0)[:, None], screen.clamp(c0 + t0[:, None] * d), c0)
+    hi = np.where((t1 < 1)[:, None], screen.clamp(c0 + t1[:, None] * d), c1)
+    first = np.where(swap[:, None], hi, lo)
+    last = np.where(swap[:, None], lo, hi)
+    length = np.any(first != last, axis=1)
+    ok[ok] = length
+    return first[length], last[length], ok
+
+
+def inside_span(screen, p0: np.ndarray, p1: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The part of each segment p0 + t (p1 - p0), 0 <= t <= 1, inside the usable area, as
+    its parameters (t0, t1); t0 >= t1 where none of it is (or only a point).
+
+    Notes
+    -----
+    The area is convex: a rectangle |x| <= w, |y| <= h (Liang and Barsky: each slab
+    -w <= x0 + t dx <= w bounds t from both sides) or a disc |p| <= r (the roots of
+    |p0 + t d|^2 = r^2, the smaller as c / q with q = -(b + sign(b) sqrt(b^2 - 4 a c)) / 2,
+    which keeps its digits when the two are far apart).
+
+    Examples
+    --------
+    >>> from vectorgen.screen import Screen
+    >>> t0, t1 = inside_span(Screen(width_mm=100.0, height_mm=80.0),
+    ...                      np.array([[0.0, 0.0]]), np.array([[80.0, 30.0]]))
+    >>> float(t0[0]), float(t1[0])
+    (0.0, 0.625)
+    """
+    d = p1 - p0
+    t0, t1 = np.zeros(len(p0)), np.ones(len(p0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if screen.round:
+            r = screen.radius_mm
+            a = np.einsum("ij,ij->i", d, d)
+            b = 2.0 * np.einsum("ij,ij->i", p0, d)
+            c = np.einsum("ij,ij->i", p0, p0) - r * r
+            disc = b * b - 4.0 * a * c
+            q = -0.5 * (b + np.copysign(np.sqrt(np.maximum(disc, 0.0)), b))
+            ra, rb = q / a, c / q
+            lo, hi = np.minimum(ra, rb), np.maximum(ra, rb)
+            meets = (disc > 0) & (a > 0)
+            t0 = np.where(meets, np.maximum(t0, lo), 1.0)
+            t1 = np.where(meets, np.minimum(t1, hi), 0.0)
+        else:
+            for k, lim in enumerate(screen.half_extent):
+                dk, pk = d[:, k], p0[:, k]
+                ta, tb = (-lim - pk) / dk, (lim - pk) / dk
+                level = dk == 0                     # parallel to the slab: all in or all out
+                inside = np.abs(pk) <= lim
+                lo = np.where(level, np.where(inside, -np.inf, np.inf), np.minimum(ta, tb))
+                hi = np.where(level, np.where(inside, np.inf, -np.inf), np.maximum(ta, tb))
+                t0, t1 = np.maximum(t0, lo), np.minimum(t1, hi)
+    return t0, t1
 
 
 class ClippedStrokes:
