@@ -384,8 +384,27 @@ def test_round_face_clips_to_the_circle():
     assert np.hypot(*pts.T).max() <= 35.0 * (1 + 1e-9)
     # Chord of a circle at distance d from the centre: 2 sqrt(r^2 - d^2) (textbook).
     expected = 2 * math.sqrt(35.0**2 - 10.0**2) + 70.0
-    # the area polygon is shapely's 1024-gon approximation of the circle
-    assert frame.plan.drawn_length_mm == pytest.approx(expected, rel=1e-4)
+    assert frame.plan.drawn_length_mm == pytest.approx(expected, rel=1e-9)
+
+
+near_disc = st.floats(-80, 80, allow_nan=False, allow_infinity=False)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(lines=st.lists(st.lists(st.tuples(near_disc, near_disc), min_size=2, max_size=6),
+                      min_size=1, max_size=4))
+def test_round_face_clipped_length_matches_shapely_and_stays_in_the_circle(lines):
+    screen = Screen(shape="round", diameter_mm=70.0)
+    # shapely's 16384-gon inscribed in the circle: its edge is within dr = r (1 - cos(pi /
+    # 16384)) ~ 6e-7 mm of the circle, so a chord's length is within 2 sqrt(2 r dr) ~ 0.013 mm
+    # even where it grazes the circle (textbook chord length 2 sqrt(r^2 - d^2))
+    disc = shapely.Point(0.0, 0.0).buffer(35.0, quad_segs=4096)
+    pairs = [(a, b) for p in lines for a, b in zip(p[:-1], p[1:]) if a != b]
+    ref = sum(shapely.LineString([a, b]).intersection(disc).length for a, b in pairs)
+    clipped, _ = clip_to_screen(polylines(*lines), screen)
+    if clipped.count:
+        assert np.hypot(*clipped.points.T).max() <= 35.0 * (1 + 1e-12)
+    assert clipped.total_length() == pytest.approx(ref, abs=0.013 * max(len(pairs), 1))
 
 
 finite = st.floats(-150, 150, allow_nan=False, allow_infinity=False)
