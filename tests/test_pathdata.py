@@ -496,6 +496,23 @@ def test_faults_in_a_batch_are_set_aside_and_the_other_strings_read_as_alone():
     assert read_path_list(good)[1] == {}
 
 
+def test_a_drawing_of_many_paths_reads_as_each_path_alone():
+    """Half a megabyte of path data (read in parts): every path as svgpathtools reads it
+    alone, and a fault near the end named by its own string."""
+    ds = [f"M{i % 97} {i % 89} q 3 -4 {i % 7 + 1} 0 t 5 5 a 4 3 {i % 180} 1 0 {i % 11 + 1} 2 z"
+          for i in range(8000)]
+    ds[7777] = "M 0 0 L 10 x"
+    table, faults = read_path_list(ds)
+    assert list(faults) == [7777] and "at character 12:" in faults[7777]
+    assert table.paths == 8000 and sorted(set(table.run_owner.tolist())) == [
+        i for i in range(8000) if i != 7777]
+    some = [0, 1, 4321, 7776, 7778, 7999]
+    assert_same_curves(select_paths(table, some),                          # svgpathtools
+                       [g for i in some for g in ref_path(ds[i])])
+    with pytest.raises(InputError, match=r"^path 7778: .* at character 12:"):
+        parse_path_list(ds)
+
+
 def test_selected_paths_come_in_the_order_asked_with_repeats():
     ds = ["M0 0 L1 1 Q 2 2 3 0", "", "M5 5 A 3 2 10 0 1 9 9 z m 1 1 h 2", "m1 1 c 1 2 3 4 5 6"]
     table = select_paths(parse_path_list(ds), [3, 0, 3, 1, 2])

@@ -177,7 +177,7 @@ def parse_path_list(ds, wheres=None) -> PathTable:
     if not any(ds):
         return PathTable.empty(len(ds))
     try:
-        return _Reader(ds).table()
+        return _read(ds)
     except _Fault as fault:
         where = wheres[fault.index] if wheres is not None else f"path {fault.index + 1}"
         raise InputError(f"{where}: {fault.reason}") from None
@@ -222,7 +222,7 @@ syntax (near 'M 0 0 L 10 x')"})
         if not any(part):
             return
         try:
-            _Reader(part).table()
+            _read(part)
         except _Fault as fault:
             at = lo + fault.index
             faults[at] = fault.reason
@@ -232,11 +232,11 @@ syntax (near 'M 0 0 L 10 x')"})
             sweep(mid, hi)
 
     try:
-        return (_Reader(ds).table() if any(ds) else PathTable.empty(len(ds))), faults
+        return (_read(ds) if any(ds) else PathTable.empty(len(ds))), faults
     except _Fault:
         sweep(0, len(ds))
     kept = ["" if i in faults else d for i, d in enumerate(ds)]
-    return (_Reader(kept).table() if any(kept) else PathTable.empty(len(ds))), faults
+    return (_read(kept) if any(kept) else PathTable.empty(len(ds))), faults
 
 
 def select_runs(table: PathTable, runs, run_owner=None, paths=None) -> PathTable:
@@ -575,6 +575,34 @@ def table_bounds(table: SegmentTable):
 
 
 # --- reading ---------------------------------------------------------------------------------
+
+_BATCH_CHARS = 1 << 17
+
+
+def _read(ds: list) -> PathTable:
+    """The table of path strings, read in batches of about _BATCH_CHARS characters (every
+    array of a batch stays small enough to be in cache and reused: a whole drawing's arrays
+    at once are fresh memory, a page fault per 4 KiB); raises `_Fault` for the first string
+    at fault, by its index in `ds`."""
+    sizes = np.fromiter((len(d) + 1 for d in ds), dtype=np.int64, count=len(ds))
+    ends = np.cumsum(sizes)
+    if not len(ds) or ends[-1] <= _BATCH_CHARS:
+        return _Reader(ds).table()
+    cuts = np.searchsorted(ends, np.arange(_BATCH_CHARS, ends[-1], _BATCH_CHARS)) + 1
+    bounds = sorted({0, len(ds), *cuts[cuts < len(ds)].tolist()})
+    tables = []
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        part = ds[lo:hi]
+        if not any(part):
+            tables.append(PathTable.empty(hi - lo))
+            continue
+        try:
+            tables.append(_Reader(part).table())
+        except _Fault as fault:
+            fault.index += lo
+            raise
+    return concat_tables(tables)
+
 
 class _Fault(Exception):
     """Text outside the path grammar: the string's index in its batch and the reason."""
