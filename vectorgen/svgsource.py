@@ -133,7 +133,7 @@ def document_strokes(doc: Document, screen, fit: str = "page",
     if geo.empty:
         raise InputError(f"{doc.name}: nothing drawable in this SVG{_empty_hint(doc, geo)}")
     place = _Placement(doc, fit, screen)
-    matrix, offset = place(geo.hull())
+    matrix, offset = place(geo.hull() if place.uses_content else None)
     scale = _stretch(matrix)
     strokes = geo.strokes(tolerance_mm / scale)
     if not strokes.count:
@@ -304,6 +304,21 @@ def _flatten(table: PathTable, tol: float) -> tuple[np.ndarray, np.ndarray]:
     return flatten_table(table, tol)
 
 
+def _surely_moderate(table: PathTable) -> bool:
+    """Whether every hull point of the table is surely finite and within COORD_LIMIT_USER
+    of the origin, from its rows alone: control and end points, and for an arc its centre's
+    distance plus its larger radius (every point of its ellipse is within that)."""
+    limit = COORD_LIMIT_USER * (1 - 1e-9)
+    parts = [np.abs(table.starts).max(initial=0.0)]
+    parts += [np.abs(table.data[k]).max(initial=0.0) for k in (1, 2, 3) if k in table.data]
+    if 4 in table.data:
+        a = table.data[4]
+        parts.append((np.abs(a[:, 0]) + np.maximum(a[:, 1].real, a[:, 2].real)).max())
+        parts.append(np.abs(a[:, 6]).max())
+    worst = np.max(parts)                   # (NaN wins, as it must)
+    return bool(np.isfinite(worst) and worst <= limit)
+
+
 class _RootGeometry:
     """A document's shapes and texts in the root's user space, to be flattened at any
     tolerance."""
@@ -312,20 +327,26 @@ class _RootGeometry:
         self.doc = doc
         self.shapes = doc.shapes
         self.table = _root_table([(s.path, s.matrix) for s in doc.shapes])
-        hull = hull_points(self.table) if self.table.segments else np.zeros(0, dtype=complex)
-        self._hull_points = hull
-        if hull.size and not (np.all(np.isfinite(hull))
-                              and np.abs(hull).max() <= COORD_LIMIT_USER):
-            bad = int(np.argmax(~np.isfinite(hull) | (np.abs(hull) > COORD_LIMIT_USER)))
-            raise InputError(f"{doc.name}: coordinates are not finite or are enormous "
-                             f"({hull[bad].real:g}, {hull[bad].imag:g})")
+        self._hull_points = None
+        if self.table.segments and not _surely_moderate(self.table):
+            hull = self._hull()
+            if not (np.all(np.isfinite(hull)) and np.abs(hull).max() <= COORD_LIMIT_USER):
+                bad = int(np.argmax(~np.isfinite(hull) | (np.abs(hull) > COORD_LIMIT_USER)))
+                raise InputError(f"{doc.name}: coordinates are not finite or are enormous "
+                                 f"({hull[bad].real:g}, {hull[bad].imag:g})")
         self.texts_undrawn = 0
         self.text_lines = _set_texts(doc, self)          # [(order, points, intens, label, clips)]
         self.empty = not self.table.segments and not self.text_lines
         self._regions: dict = {}
 
+    def _hull(self) -> np.ndarray:
+        if self._hull_points is None:
+            self._hull_points = (hull_points(self.table) if self.table.segments else
+                                 np.zeros(0, dtype=complex))
+        return self._hull_points
+
     def hull(self) -> tuple[float, float, float, float]:
-        pts = [self._hull_points]
+        pts = [self._hull()]
         pts += [t[1][:, 0] + 1j * t[1][:, 1] for t in self.text_lines]
         z = np.concatenate(pts)
         return (float(z.real.min()), float(z.imag.min()), float(z.real.max()),
