@@ -69,6 +69,9 @@ NEVER_DRAWN = frozenset({
 NOT_DRAWN = frozenset({"image", "foreignObject", "video", "audio", "iframe", "canvas"})
 ANIMATION = frozenset({"animate", "set", "animateMotion", "animateTransform", "animateColor",
                        "discard"})
+# Every property's initial value, one shared record each (records are read, never changed).
+_INITIAL = {prop: Declared(initial, "initial value") for prop, (_inh, initial) in
+            PROPERTIES.items()}
 _URL = re.compile(r"""^url\(\s*(['"]?)([^'")]*)\1\s*\)(?:\s+(.*))?$""", re.S)
 
 
@@ -141,8 +144,14 @@ class Shape:
     dots: bool                  # zero-length dashes and sub-paths are drawn as dots
     clips: tuple                # ClipNodes, all of which the strokes are cut to
     label: str                  # for the strokes: "<rect id='frame'>"
-    name: str                   # for messages: "<rect id='frame'> on line 4"
+    element: object = field(repr=False)     # the element it comes from, and the source
+    lines: dict = field(repr=False)         # lines, for messages (`name`)
     order: int                  # place in the document
+
+    @property
+    def name(self) -> str:
+        """For messages: "<rect id='frame'> on line 4"."""
+        return element_name(self.element, self.lines)
 
 
 @dataclass(eq=False)
@@ -279,10 +288,14 @@ class _Walker:
         self.ids: dict = {}
         sheets = []
         mentioned: set = set()          # dash and marker properties anywhere in the file?
-        path_tag = f"{_SVG}path"
+        path_tag, use_tag = f"{_SVG}path", f"{_SVG}use"
         self._path_index: dict = {}     # <path> element -> its place among the path strings
         path_data: list = []
+        self._elements, self._uses = 0, False
         for el in self.root.iter():
+            self._elements += 1
+            if el.tag == use_tag:
+                self._uses = True
             ident = el.get("id")
             if ident is not None and ident not in self.ids:
                 self.ids[ident] = el
@@ -358,14 +371,14 @@ class _Walker:
             kw = own.value.lower()
             if kw == "initial" or (kw in ("unset", "revert", "revert-layer")
                                    and prop not in INHERITED):
-                return Declared(PROPERTIES[prop][1], "initial value")
+                return _INITIAL[prop]
             if kw not in ("inherit", "unset", "revert", "revert-layer"):
                 return own
         if prop in INHERITED:
             got = ctx.inherited.get(prop)
             if got is not None:
                 return got
-        return Declared(PROPERTIES[prop][1], "initial value")
+        return _INITIAL[prop]
 
     def _keyword(self, el, decl, ctx, prop: str, allowed: tuple) -> str:
         dec = self._value(decl, ctx, prop)
@@ -544,6 +557,8 @@ class _Walker:
         walking (each element's count once, depth first): a few kilobytes of nested <use>
         can ask for billions of copies, which are refused before any is made. A reference
         back into its own chain (a cycle, refused by the walk) counts nothing here."""
+        if not self._uses:
+            return self._elements       # no copies: every element once
         limit = MAX_INSTANCES + 1
         use_tag = f"{_SVG}use"
 
@@ -742,8 +757,8 @@ class _Walker:
                     self._warn_once("markers are not drawn", key="marker")
         self.order += 1
         label = (element_label(el) if el.get("id") else f"<{name}> #{self.order}") + c.via
-        self.shapes.append(Shape(path, c.matrix, intensity, dash, dots, c.clips, label,
-                                 self._name(el), self.order))
+        self.shapes.append(Shape(path, c.matrix, intensity, dash, dots, c.clips, label, el,
+                                 self.lines, self.order))
 
     def _geometry(self, el, name: str, vp: Viewport) -> PathData | None:
         """The element's segments in its user units (None: it draws nothing)."""
