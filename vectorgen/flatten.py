@@ -67,10 +67,14 @@ def _bezier_turn_counts(ctrl: np.ndarray) -> np.ndarray:
     else:
         t = np.linspace(0.0, 1.0, _TURN_STEPS + 1)
         w0, w1, w2 = (1 - t) ** 2, 2 * (1 - t) * t, t ** 2
-        sx = dx[:, :1] * w0 + dx[:, 1:2] * w1 + dx[:, 2:] * w2             # (m, 33)
-        sy = dy[:, :1] * w0 + dy[:, 1:2] * w1 + dy[:, 2:] * w2
-        sx = _along_x(sx, sy)
-        turn = _turn(sx[:, :-1], sy[:, :-1], sx[:, 1:], sy[:, 1:]).sum(axis=1)
+        turn = np.empty(len(ctrl))
+        rows = _CHUNK_POINTS // (_TURN_STEPS + 1)      # curves at a time (see _chunks)
+        for lo in range(0, len(ctrl), rows):
+            x, y = dx[lo:lo + rows], dy[lo:lo + rows]
+            sx = x[:, :1] * w0 + x[:, 1:2] * w1 + x[:, 2:] * w2             # (m, 33)
+            sy = y[:, :1] * w0 + y[:, 1:2] * w1 + y[:, 2:] * w2
+            sx = _along_x(sx, sy)
+            turn[lo:lo + rows] = _turn(sx[:, :-1], sy[:, :-1], sx[:, 1:], sy[:, 1:]).sum(axis=1)
     return np.ceil(np.degrees(turn) / MAX_TURN_DEG).astype(np.int64)
 
 
