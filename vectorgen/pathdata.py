@@ -1015,7 +1015,9 @@ def _geometry(cmds: _Commands, paths: int) -> PathTable:
     firsts = np.flatnonzero(new_run)
     run_len = np.diff(np.append(firsts, len(drawn))).astype(np.int64)
     owner = (np.cumsum(code == _START) - 1)[drawn[firsts]].astype(np.int64)
-    closed = np.isin(rid[firsts], run_id[is_z])
+    z_runs = run_id[is_z]                       # in order (np.isin would sort them again)
+    at = np.minimum(np.searchsorted(z_runs, rid[firsts]), max(len(z_runs) - 1, 0))
+    closed = (z_runs[at] == rid[firsts]) if len(z_runs) else np.zeros(len(firsts), bool)
     kinds = kind[drawn]
     data = {}
     for k, cols_of in ((1, lambda i: (cur[i], end[i])),

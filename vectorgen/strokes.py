@@ -177,8 +177,10 @@ def repeated_points(points: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     same = x[1:] == x[:-1]                                   # (all(axis=1) is slow)
     same &= y[1:] == y[:-1]
     idx = np.flatnonzero(same) + 1
-    if len(idx):
-        idx = idx[~np.isin(idx, offsets[:-1])]            # a stroke's first point stays
+    if len(idx):                                            # a stroke's first point stays
+        starts = np.asarray(offsets[:-1])
+        at = np.minimum(np.searchsorted(starts, idx), len(starts) - 1)
+        idx = idx[starts[at] != idx]
     return idx
 
 
