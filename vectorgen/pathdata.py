@@ -4,7 +4,8 @@ Path data (the ``d`` attribute, SVG 1.1 section 8.3, SVG 2 section 9.3) becomes 
 `PathTable`: the `vectorgen.flatten.SegmentTable` the flattener consumes (per kind 1 line,
 2 quadratic, 3 cubic Bezier, 4 elliptical arc an array with a row per segment, complex
 x + iy), plus each run's closed flag and the string it came from. Three steps, each over
-every character, number or command of a whole drawing at once:
+every character, number or command of many strings at once (a drawing's are read in parts of
+about 128k characters, whose arrays stay in cache):
 
 1. lexing: characters are classed by a lookup table; a number ends where the grammar's
    longest match ends it (a sign not after an exponent mark, a second decimal point, a point
@@ -18,8 +19,10 @@ every character, number or command of a whole drawing at once:
 3. geometry: arcs from endpoint to centre form (SVG 1.1, F.6.5, with the radii correction of
    F.6.6).
 
-`transform_table` maps a table through affine maps exactly (arcs through the image of their
-ellipse), `concat_tables` joins tables, `table_bounds` gives their bounding box.
+`read_path_list` reads a document's strings and sets aside those at fault (an error only for
+an element that is drawn); `select_paths` and `select_runs` take strings or runs of a table in
+any order; `transform_table` maps a table through affine maps exactly (arcs through the image
+of their ellipse), `concat_tables` joins tables, `table_bounds` and `hull_points` bound them.
 """
 
 from __future__ import annotations
