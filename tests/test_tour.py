@@ -543,8 +543,9 @@ def test_print_timing_of_10000_strokes():
 
 # --- neighbour queries against scipy.spatial ----------------------------------------------------
 
-@pytest.mark.parametrize("layout", ["scattered", "vertical line", "coincident", "lattice"])
-def test_close_pairs_of_small_sets_match_scipy_query_pairs(layout):
+@pytest.mark.parametrize("layout", ["scattered", "vertical line", "coincident", "lattice",
+                                    "many ends"])
+def test_close_pairs_match_scipy_query_pairs(layout):
     # reference: scipy.spatial.cKDTree.query_pairs, the set of pairs within r (the engine uses
     # a sort along one axis below its KD-tree threshold; the answer must be the same set)
     from scipy.spatial import cKDTree
@@ -562,10 +563,48 @@ def test_close_pairs_of_small_sets_match_scipy_query_pairs(layout):
         base = rng.uniform(-40, 40, (100, 2))
         xy = np.repeat(base, 3, axis=0)[rng.permutation(300)]
         r = 1e-9
-    else:
+    elif layout == "lattice":
         g = np.arange(12) * 1.0
         xy = np.array([(x, y) for x in g for y in g])
         r = 1.0                                  # exactly one step: on the boundary, included
+    else:                                        # 2,500 strokes' ends, most meeting in pairs
+        base = rng.uniform(-50, 50, (3000, 2))
+        xy = np.vstack([base, base[:2000] + rng.normal(0, 0.005, (2000, 2))])
+        r = 0.02
     got = {tuple(p) for p in _close_pairs(xy, r).tolist()}
     want = {tuple(sorted(p)) for p in cKDTree(xy).query_pairs(r=r, output_type="ndarray").tolist()}
     assert got == want and len(want) > 0
+
+
+@pytest.mark.parametrize("layout", ["uniform", "clustered", "lattice", "line", "repeated"])
+def test_nearest_points_of_mid_sized_sets_match_scipy_kdtree(layout):
+    # reference: scipy.spatial.cKDTree.query (k nearest, nearest first). The engine answers
+    # sets of a few thousand points from a grid instead (no scipy.spatial import on the render
+    # path); the distances must be the tree's exactly, and the points too wherever a distance
+    # is not tied (the tree orders equal distances its own way)
+    from scipy.spatial import cKDTree
+
+    from vectorgen.tour import _knn
+
+    rng = np.random.default_rng(11)
+    xy = {"uniform": lambda: rng.uniform(0, 100, (4000, 2)),
+          "clustered": lambda: np.vstack([rng.normal(c, 0.5, (200, 2))
+                                          for c in rng.uniform(0, 100, (20, 2))]),
+          "lattice": lambda: np.array([(x, y) for x in range(60) for y in range(60)], float),
+          "line": lambda: np.column_stack([np.zeros(3000), rng.uniform(0, 50, 3000)]),
+          "repeated": lambda: np.repeat(rng.uniform(0, 10, (900, 2)), 3, axis=0)}[layout]()
+    k = 10
+    d, j = _knn(xy, xy, k)
+    td, tj = cKDTree(xy).query(xy, k=k + 1)            # one more: ties across the k-th
+    assert d.shape == (len(xy), k) and np.array_equal(d, td[:, :k])
+    # an entry is untied when its distance occurs once among the k + 1 nearest
+    same = td[:, :k, None] == td[:, None, :]
+    untied = same.sum(axis=2) == 1
+    assert np.array_equal(j[untied], tj[:, :k][untied])
+    if layout != "repeated":                          # (there every distance comes in threes)
+        assert untied.mean() > (0.1 if layout == "lattice" else 0.9)
+    # and every point listed is where its distance says, each once per row
+    q = np.repeat(np.arange(len(xy)), k)
+    got = np.hypot(*(xy[j.ravel()] - xy[q]).T).reshape(d.shape)
+    assert np.allclose(got, d, rtol=0, atol=1e-12)
+    assert all(len(set(row)) == k for row in j.tolist())

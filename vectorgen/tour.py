@@ -61,17 +61,31 @@ NN_NEIGHBOURS = 8
 BUDGET_BASE_S = 0.015
 BUDGET_PER_STROKE_S = 16e-6
 MAX_SEGMENT = 3                 # longest run of strokes an Or-opt move carries
-# Up to this many points, neighbours come from a distance matrix rather than a KD-tree: the
-# same neighbours, and a small drawing does not pay for importing scipy.spatial (about 0.5 s).
+# Up to this many points, neighbours come from a distance matrix; up to GRID_POINTS from a
+# uniform grid (the same answers, ties by index); beyond, from a KD-tree: a drawing of a few
+# thousand strokes does not pay for importing scipy.spatial (about 0.5 s).
 BRUTE_FORCE_POINTS = 1500
+GRID_POINTS = 12_000
 KNN_QUERIES_PER_PASS = 64
+GRID_FILL = 2.0                 # points per occupied grid cell the grid aims at
+GRID_QUERIES_PER_PASS = 512
 
 
 def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
-    """(distances, indices), each (len(queries), k), nearest first: cKDTree(xy).query's answer
-    (a distance matrix for small sets)."""
+    """(distances, indices), each (len(queries), k), nearest first, ties by index: a distance
+    matrix for small sets, a grid (`_grid_knn`) for larger ones, cKDTree(xy).query beyond
+    GRID_POINTS (which may order equal distances otherwise)."""
     xy, queries = np.asarray(xy, dtype=float), np.asarray(queries, dtype=float)
-    if len(xy) > BRUTE_FORCE_POINTS or len(queries) > BRUTE_FORCE_POINTS:
+    big = max(len(xy), len(queries))
+    if big > GRID_POINTS:
+        from scipy.spatial import cKDTree
+
+        d, j = cKDTree(xy).query(queries, k=k, workers=workers)
+        return np.asarray(d).reshape(len(queries), k), np.asarray(j).reshape(len(queries), k)
+    if big > BRUTE_FORCE_POINTS and k < len(xy):
+        found = _grid_knn(xy, queries, k)
+        if found is not None:
+            return found
         from scipy.spatial import cKDTree
 
         d, j = cKDTree(xy).query(queries, k=k, workers=workers)
@@ -95,16 +109,100 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
     return dist, near
 
 
+def _grid_knn(xy: np.ndarray, queries: np.ndarray, k: int):
+    """The k nearest points of xy to each query, exactly as the distance matrix finds them
+    (by squared distance, then index), from a uniform grid.
+
+    The points are sorted by cell (row by row, so a row of cells is one slice). Each query
+    looks at the window of cells within R of its own and keeps its k nearest candidates;
+    they are the k nearest of all when the k-th lies no farther than the window's nearest
+    edge that is not the grid's. The queries for which that fails look again with R doubled.
+    The cell is halved while occupied cells hold more than 2 GRID_FILL points on average (a
+    clustered drawing), so a window holds a few dozen candidates; None when even then they
+    hold more than 4 GRID_FILL (a few tight clusters far apart: a KD-tree serves better)."""
+    n, m = len(xy), len(queries)
+    lo = np.minimum(xy.min(axis=0), queries.min(axis=0))
+    span = np.maximum(xy.max(axis=0), queries.max(axis=0)) - lo
+    area = float(span[0] * span[1])
+    cell = np.sqrt(area * GRID_FILL / n) if area > 0 else float(span.max()) * GRID_FILL / n
+    if not cell > 0:                               # every point in one place
+        cell = 1.0
+    for _ in range(8):
+        nx, ny = int(span[0] // cell) + 1, int(span[1] // cell) + 1
+        gx = np.minimum(((xy[:, 0] - lo[0]) // cell).astype(np.int64), nx - 1)
+        gy = np.minimum(((xy[:, 1] - lo[1]) // cell).astype(np.int64), ny - 1)
+        cid = gy * nx + gx
+        fill = n / len(np.unique(cid))
+        if fill <= 2 * GRID_FILL or nx * ny > 16 * n:
+            break
+        cell /= 2.0
+    if fill > 4 * GRID_FILL:                       # clustered beyond what a grid serves
+        return None
+    o = np.argsort(cid, kind="stable")
+    start = np.searchsorted(cid[o], np.arange(nx * ny + 1))
+    sx, sy = xy[o, 0], xy[o, 1]
+    qx, qy = queries[:, 0], queries[:, 1]
+    qgx = np.clip(((qx - lo[0]) // cell).astype(np.int64), 0, nx - 1)
+    qgy = np.clip(((qy - lo[1]) // cell).astype(np.int64), 0, ny - 1)
+    dist = np.empty((m, k))
+    near = np.empty((m, k), dtype=np.int64)
+    todo = np.arange(m)
+    R = 2
+    while len(todo):
+        c0, c1 = np.maximum(qgx[todo] - R, 0), np.minimum(qgx[todo] + R, nx - 1)
+        r0, r1 = np.maximum(qgy[todo] - R, 0), np.minimum(qgy[todo] + R, ny - 1)
+        rows = r1 - r0 + 1
+        t = np.repeat(np.arange(len(todo)), rows)                # one segment per row
+        row = np.repeat(r0, rows) + (np.arange(int(rows.sum())) - np.repeat(np.cumsum(rows)
+                                                                            - rows, rows))
+        a, b = start[row * nx + c0[t]], start[row * nx + c1[t] + 1]
+        size = b - a
+        per_q = np.bincount(t, weights=size, minlength=len(todo)).astype(np.int64)
+        qi = np.repeat(t, size)
+        cand = np.repeat(a - (np.cumsum(size) - size), size) + np.arange(int(size.sum()))
+        d2 = (sx[cand] - qx[todo][qi]) ** 2 + (sy[cand] - qy[todo][qi]) ** 2
+        idx = o[cand]
+        # the candidates of each query in a row of a padded block, its k nearest by partition
+        first = np.cumsum(per_q) - per_q
+        col = np.arange(len(cand)) - np.repeat(first, per_q)
+        kd2 = np.full((len(todo), k), np.inf)
+        kid = np.zeros((len(todo), k), dtype=np.int64)
+        for g0 in range(0, len(todo), GRID_QUERIES_PER_PASS):
+            g1 = min(g0 + GRID_QUERIES_PER_PASS, len(todo))
+            c_lo, c_hi = first[g0], first[g1 - 1] + per_q[g1 - 1]
+            width = int(per_q[g0:g1].max())
+            if width < k:
+                continue
+            block = np.full((g1 - g0, width), np.inf)
+            ids = np.zeros((g1 - g0, width), dtype=np.int64)
+            r, c = qi[c_lo:c_hi] - g0, col[c_lo:c_hi]
+            block[r, c], ids[r, c] = d2[c_lo:c_hi], idx[c_lo:c_hi]
+            j = np.argpartition(block, k - 1, axis=1)[:, :k]
+            dd, jj = np.take_along_axis(block, j, axis=1), np.take_along_axis(ids, j, axis=1)
+            srt = np.lexsort((jj, dd), axis=1)          # by distance, then index
+            kd2[g0:g1] = np.take_along_axis(dd, srt, axis=1)
+            kid[g0:g1] = np.take_along_axis(jj, srt, axis=1)
+        edge = np.minimum.reduce([np.where(c0 > 0, qx[todo] - (lo[0] + c0 * cell), np.inf),
+                                  np.where(c1 < nx - 1, lo[0] + (c1 + 1) * cell - qx[todo],
+                                           np.inf),
+                                  np.where(r0 > 0, qy[todo] - (lo[1] + r0 * cell), np.inf),
+                                  np.where(r1 < ny - 1, lo[1] + (r1 + 1) * cell - qy[todo],
+                                           np.inf)])
+        ok = (per_q >= k) & (kd2[:, -1] <= edge * edge)
+        done = todo[ok]
+        dist[done] = np.sqrt(kd2[ok])
+        near[done] = kid[ok]
+        todo = todo[~ok]
+        R *= 2
+    return dist, near
+
+
 def _close_pairs(xy: np.ndarray, r: float) -> np.ndarray:
-    """(m, 2) index pairs i < j of points within r: cKDTree.query_pairs's set of pairs (for
-    small sets: the points sorted along their wider axis, each compared with the next ones
-    until they lie more than r further along it)."""
+    """(m, 2) index pairs i < j of points within r: cKDTree.query_pairs's set of pairs, from
+    the points sorted along their wider axis, each compared with the next ones until they
+    lie more than r further along it (stroke ends meet at a few points each: few passes)."""
     xy = np.asarray(xy, dtype=np.float64)
     n = len(xy)
-    if n > BRUTE_FORCE_POINTS:
-        from scipy.spatial import cKDTree
-
-        return cKDTree(xy).query_pairs(r=r, output_type="ndarray").reshape(-1, 2)
     if n < 2:
         return np.zeros((0, 2), dtype=np.int64)
     axis = int(np.ptp(xy[:, 1]) > np.ptp(xy[:, 0]))
@@ -129,12 +227,6 @@ def _components(n: int, pairs: np.ndarray) -> np.ndarray:
     """Connected-component label of each of n nodes linked by `pairs` (labels 0..c-1)."""
     if len(pairs) == 0:
         return np.arange(n)
-    if n > BRUTE_FORCE_POINTS:
-        from scipy.sparse import coo_matrix
-        from scipy.sparse.csgraph import connected_components
-
-        graph = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n))
-        return connected_components(graph, directed=False)[1]
     label = np.arange(n)
     while True:                                    # propagate the smallest label along links
         low = np.minimum(label[pairs[:, 0]], label[pairs[:, 1]])
