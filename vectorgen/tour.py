@@ -64,7 +64,7 @@ MAX_SEGMENT = 3                 # longest run of strokes an Or-opt move carries
 # Up to this many points, neighbours come from a distance matrix; up to GRID_POINTS from a
 # uniform grid (the same answers, ties by index); beyond, from a KD-tree: a drawing of a few
 # thousand strokes does not pay for importing scipy.spatial (about 0.5 s).
-BRUTE_FORCE_POINTS = 1500
+BRUTE_FORCE_POINTS = 400
 GRID_POINTS = 12_000
 KNN_QUERIES_PER_PASS = 64
 GRID_FILL = 2.0                 # points per occupied grid cell the grid aims at
