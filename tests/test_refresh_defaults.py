@@ -72,6 +72,25 @@ def test_each_built_in_shape_refreshes_at_forty_hertz_or_more_at_its_defaults(tm
     assert rep["clipped_strokes"] == 0          # drawn whole, not cut at the edge
 
 
+def test_the_grid_on_a_larger_tube_chooses_its_step_and_still_refreshes_at_forty_hertz(
+        tmp_path):
+    # the invented bench tube's usable area is 140 x 105 mm, the grid keeps to 90 % of it
+    # (+-63 x +-47.25 mm): a 1-2-5 step giving at most 10 cells across 126 mm is 20 mm, so
+    # 7 lines across at 0, +-20, +-40, +-60 mm, each 80 mm long (between the outermost lines
+    # up, +-40), and 5 lines up, each 120 mm: 7 x 80 + 5 x 120 = 1160 mm (worked out here).
+    # Given explicitly, 10 mm: 13 x 80 + 9 x 120 = 2120 mm
+    wav, js = tmp_path / "grid.wav", tmp_path / "grid.json"
+    run("render", "--shape", "grid", "--profile", BENCH_PROFILE, "--channels", "3", "-o", wav,
+        "--report", js, "-q")
+    hz, rep = refresh_of(wav, js)
+    assert hz >= TARGET_HZ
+    assert rep["drawn_length_mm"] == pytest.approx(1160.0, rel=1e-9)
+    run("render", "--shape", "grid", "--grid-step", "10", "--profile", BENCH_PROFILE,
+        "--channels", "3", "-o", tmp_path / "g10.wav", "--report", tmp_path / "g10.json", "-q")
+    g10 = json.loads((tmp_path / "g10.json").read_text())
+    assert g10["drawn_length_mm"] == pytest.approx(2120.0, rel=1e-9)
+
+
 def test_the_clock_with_its_second_hand_refreshes_at_forty_hertz_or_more_at_any_second(
         tmp_path):
     """The clock is the tightest shape (60 ticks, 12 numerals, three hands): a minute of

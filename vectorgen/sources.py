@@ -46,7 +46,8 @@ class DrawingOptions:
         Time of day shown by a clock (None: 10:10).
     seconds_hand : bool
         Whether a clock shows its seconds hand.
-    grid_step_mm : float
+    grid_step_mm : float or None
+        Spacing of the test grid's lines; None lets the grid choose it from the screen.
     radius_mm : float or None
     center : (float, float)
         Where a shape is centred, mm.
@@ -60,7 +61,7 @@ class DrawingOptions:
     align: str = "center"
     time_s: float | None = None
     seconds_hand: bool = False
-    grid_step_mm: float = 10.0
+    grid_step_mm: float | None = None
     radius_mm: float | None = None
     center: tuple = (0.0, 0.0)
     numerals: bool = True

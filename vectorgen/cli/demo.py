@@ -20,7 +20,7 @@ def cmd_demo(args) -> int:
         raise InputError(f"the demo writes a .wav file (got {args.output!r})")
     render_args = argparse.Namespace(
         source=DEMO_SVG, text=None, shape=None, fit="page", tolerance=None, text_height=None,
-        align="center", time=None, grid_step=10.0, radius=None,
+        align="center", time=None, grid_step=None, radius=None,
         profile=args.profile, rate=args.rate, channels=args.channels, speed=None,
         refresh=args.refresh, samples=None, keep_order=False, order=None, no_compensation=False,
         no_balance=False, slow_to_fit=False,

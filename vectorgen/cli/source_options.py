@@ -45,8 +45,9 @@ def add_source_arguments(parser) -> None:
                    "at (seconds or HH:MM[:SS], in place of START_TIME); A..B a range: render "
                    "lasts B-A, preview exposes every update in it; --shape clock over a "
                    "duration ticks")
-    o.add_argument("--grid-step", type=float, default=10.0, metavar="MM",
-                   help="spacing of --shape grid lines (default 10 mm)")
+    o.add_argument("--grid-step", type=float, default=None, metavar="MM",
+                   help="spacing of --shape grid lines (default: from the usable area, a 1-2-5 "
+                   "step giving at most 10 cells across; 10 mm on the built-in screen)")
     o.add_argument("--radius", type=float, default=None, metavar="MM",
                    help="radius of --shape circle or clock")
 
