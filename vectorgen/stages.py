@@ -139,10 +139,7 @@ class LinearStage(Stage):
 
 def _safe_inverse(h: np.ndarray) -> np.ndarray:
     """1 / h, and 1 where h is 0 (that harmonic cannot be compensated: it passes as it is)."""
-    out = np.ones_like(h)
-    nz = h != 0
-    out[nz] = 1.0 / h[nz]
-    return out
+    return np.divide(1.0, h, out=np.ones_like(h), where=h != 0)
 
 
 def _product(stages, f_hz: np.ndarray) -> np.ndarray:
