@@ -252,8 +252,13 @@ def highpass_response(f_hz, corner_hz) -> np.ndarray:
     fc = np.asarray(corner_hz, dtype=float)
     if not (np.all(np.isfinite(fc)) and np.all(fc >= 0)):
         raise InputError(f"corner_hz must be >= 0 and finite (corner_hz={corner_hz!r})")
-    ratio = 1j * f / np.where(fc > 0, fc, 1.0)
-    return np.where(fc > 0, ratio / (1.0 + ratio), 1.0 + 0j)
+    # j r / (1 + j r) = (r^2 + j r) / (1 + r^2), r = f / fc: in real arithmetic
+    r = f / np.where(fc > 0, fc, 1.0)
+    den = 1.0 + r * r
+    out = np.empty(np.broadcast(f, fc).shape, dtype=complex)
+    out.real = np.where(fc > 0, r * r / den, 1.0)
+    out.imag = np.where(fc > 0, r / den, 0.0)
+    return out
 
 
 class ACCoupling(LinearStage):
