@@ -1,7 +1,7 @@
 """Render-path benchmark: `python tests/bench.py` (not a test; pytest does not collect it).
 
 Prints, from one run on a generated 5,000-segment SVG rendered at 96 kHz:
-  1. in-process: the time of each stage of one frame (svgpathtools parse, the rest of
+  1. in-process: the time of each stage of one frame (reading the document, the rest of
      svg_to_strokes, check + clip, beam plan, correction + channels) and the output samples
      produced per second of compute, with the multiple of real time, two ways: strokes ->
      channels (Renderer.frame, the per-frame cost when a drawing is replayed or animated:
@@ -393,7 +393,7 @@ def main() -> int:
         ratio, ratio_ref = t_eq / t_vg, t_ref / t_vg
         print(f"\nwhole process (best of {REPEATS} runs each, interpreter start-up included; "
               f"each writes a float32 WAV):")
-        print(f"  {t_vg:6.2f} s  vectorgen render: svgpathtools parse, curves flattened to "
+        print(f"  {t_vg:6.2f} s  vectorgen render: its own SVG reading, curves flattened to "
               f"{tol} mm chords, clipped to the usable area, strokes ordered, evenly spaced "
               f"samples with corner and end dwells, blanked jumps with settling, deflection "
               f"correction, X/Y/Z channels; {n_vg} samples; worst chord error {err_vg:.4f} mm")
