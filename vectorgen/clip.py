@@ -175,7 +175,8 @@ def inside_span(screen, p0: np.ndarray, p1: np.ndarray) -> tuple[np.ndarray, np.
     """
     d = p1 - p0
     t0, t1 = np.zeros(len(p0)), np.ones(len(p0))
-    with np.errstate(divide="ignore", invalid="ignore"):
+    # (a step too small for its division gives t = +-inf, which is what the slabs need)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         if screen.round:
             r = screen.radius_mm
             a = np.einsum("ij,ij->i", d, d)
