@@ -262,3 +262,23 @@ def test_a_point_within_reach_whose_compensation_runs_out_is_refused_as_such():
     with pytest.raises(FullScaleError, match=r"within reach \(\+0\.98.*lower the writing speed"):
         render(flat, prof, rate=RATE, speed=400000.0)
     render(flat, prof, rate=RATE, speed=20000.0)          # control: at 20 m/s it is drawn
+
+
+def test_the_refresh_target_never_lengthens_a_second_order_frame():
+    # For a second-order deflection a faster cruise leaves less of the drive for the
+    # acceleration (the lag term 2 zeta / wn * v takes its share), so raising the writing
+    # speed towards the refresh target can make the frame longer. The frame the target gives
+    # must then be no longer than the one at the profile's own writing speed (20 m/s, asked
+    # for explicitly): the clock face through a 1.2 / 1.5 kHz amplifier at 48 kHz.
+    import shapes
+
+    from vectorgen.profile import Profile
+
+    prof = make_profile(response={"natural_hz": [1200.0, 1500.0], "damping": [0.6, 0.6]})
+    face = shapes.clock_face(Profile().screen, 10, 10)
+    auto = render(face, prof, rate=48000)
+    plain = render(face, prof, rate=48000, speed=prof.beam.writing_speed_mm_per_s)
+    assert len(auto.signal) == auto.samples and len(plain.signal) == plain.samples
+    assert auto.samples <= plain.samples
+    fast = render(face, prof, rate=48000, speed=prof.beam.max_writing_speed_mm_per_s)
+    assert fast.samples > plain.samples          # control: the fastest cruise is longer here

@@ -559,6 +559,7 @@ class Renderer:
         b = self.profile.beam
         want = int(self.rate / b.refresh_target_hz)
         speed = b.writing_speed_mm_per_s
+        best = plan
         for _ in range(3):
             fixed = plan.samples - plan.moving_samples
             if want <= fixed:
@@ -567,9 +568,14 @@ class Renderer:
                 speed = min(b.max_writing_speed_mm_per_s,
                             speed * plan.moving_samples / max(1, want - fixed) * 1.002)
             plan = self._plan(strokes, Timing.from_beam(b, self.rate, speed), ordered)
+            if plan.samples > best.samples:
+                # faster made the frame longer: a deflection that limits the acceleration
+                # leaves less of the drive for it the faster the strokes cruise
+                break
+            best = plan
             if plan.samples <= want or speed >= b.max_writing_speed_mm_per_s:
                 break
-        return plan, plan.samples <= want
+        return best, best.samples <= want
 
     def _too_slow(self, strokes, plan, backed_off=None) -> str:
         """The warning for a frame that cannot reach the refresh target, with about the refresh
