@@ -43,6 +43,12 @@ class DeflectionModel:
         """A^-1 (worked out once: the model is immutable)."""
         return np.linalg.inv(self.matrix)
 
+    @cached_property
+    def weakest_mm_per_fs(self) -> float:
+        """mm per full-scale drive along the weakest direction of A (its smallest eigenvalue
+        magnitude): a drive distance times this is never more than the mm it moves."""
+        return float(np.abs(np.linalg.eigvals(self.matrix)).min())
+
     @property
     def has_distortion(self) -> bool:
         return bool(self.k_radial or self.k_x or self.k_y)

@@ -319,16 +319,9 @@ class Renderer:
         self.jumps = self._jump_model()
         self.speed_cap = self._speed_cap(self.rate) if settings.compensate else None
         self.accel = self._accel_limit(self.rate) if settings.compensate else None
-        self.settle = None
-        if self.response.order > 0 and not settings.compensate:
-            # without compensation the plan cannot square a corner: it waits for the lag
-            from .response import corner_dwell_samples
-
-            resp, rate, spot = self.response, self.rate, self.profile.beam.spot_mm
-
-            def settle(turn_deg, speed_mm_s):
-                return corner_dwell_samples(turn_deg, speed_mm_s, resp, rate, spot)
-            self.settle = settle
+        # without compensation the plan cannot square a corner: it waits for the lag
+        self.settle = (self._corner_settle if self.response.order > 0
+                       and not settings.compensate else None)
         if settings.refresh is not None:
             self.target = max(1, int(round(self.rate / settings.refresh)))
         else:
@@ -346,6 +339,13 @@ class Renderer:
             return ShapedJumps(t.jump_step_mm, t.settle)
         return t.jumps
 
+    def _corner_settle(self, turn_deg, speed_mm_s):
+        """Samples a lagging spot needs to follow a turn to within the spot size."""
+        from .response import corner_dwell_samples
+
+        return corner_dwell_samples(turn_deg, speed_mm_s, self.response, self.rate,
+                                    self.profile.beam.spot_mm)
+
     def _accel_limit(self, rate: int):
         """For a second-order response: the largest change of the spot's speed per sample (mm
         per sample^2) at each vertex, accel(px, py) for the planner (None otherwise). The
@@ -357,7 +357,7 @@ class Renderer:
             return None
         wn2 = (2.0 * np.pi * np.asarray(self.response.natural_hz, dtype=float)) ** 2
         lag = np.asarray(self.response.lag_s, dtype=float)
-        mm_per_fs = float(np.abs(np.linalg.eigvals(self.model.matrix)).min())
+        mm_per_fs = self.model.weakest_mm_per_fs
         model = self.model
 
         def accel(px, py, speed):

@@ -187,13 +187,15 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         seg_acc[is_last] = np.inf
         a_piece = np.minimum.reduceat(seg_acc, np.column_stack([a, b]).ravel())[::2]
         runs_on = soft[a] & (np.r_[False, b[:-1] == a[1:]])      # joined to the piece before
-        piece_n, ramp = _ramped(piece_len, piece_n, a_piece, runs_on)
+        piece_n, piece_step, ramp = _ramped(piece_len, piece_n, a_piece, runs_on)
+    else:
+        piece_step = piece_len / np.maximum(piece_n, 1)
     n_total = int(piece_n.sum() + start_rep.sum() + piece_rep.sum() + move.sum() + settles.sum())
     if n_total > MAX_FRAME_SAMPLES:
         raise InputError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f}"
                          f" s): raise the writing speed or draw less", parameter="speed")
 
-    layout, lit, runs = _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke,
+    layout, lit, runs = _blocks(s, px, py, first, last, a, piece_step, piece_n, piece_stroke,
                                 start_rep, piece_rep, move, settles, jump_from, jump_to, jumps,
                                 ramp)
     return Plan(layout, lit, runs, drawn, stroke_intensity,
@@ -354,7 +356,8 @@ def _turn_caps(px, py, is_last, sharp, acc) -> np.ndarray:
 
 
 def _ramped(piece_len, piece_n, a_piece, runs_on):
-    """Acceleration-limited pieces: (samples per piece, (v_in, v_out, r_in, r_out, step)).
+    """Acceleration-limited pieces: (samples per piece, cruise step per piece, the layout's
+    ramp (v_in, v_out, r_in, r_out)).
 
     The speed a piece was planned at (length / samples) is its cruise speed at most. Where a
     piece runs on into the next (`runs_on[p]`: piece p joins piece p - 1 without a stop) the
@@ -391,10 +394,10 @@ def _ramped(piece_len, piece_n, a_piece, runs_on):
     den = (r_in + r_out) / 2.0 + c
     step = np.where(den > 0, (L - (v_in * r_in + v_out * r_out) / 2.0) / np.maximum(den, 1e-300),
                     0.0)
-    return n, (v_in, v_out, r_in.astype(float), r_out.astype(float), np.maximum(step, 0.0))
+    return n, np.maximum(step, 0.0), (v_in, v_out, r_in.astype(float), r_out.astype(float))
 
 
-def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_rep, piece_rep,
+def _blocks(s, px, py, first, last, a, piece_step, piece_n, piece_stroke, start_rep, piece_rep,
             move, settles, jump_from, jump_to, jumps, ramp=None):
     """The frame's sample blocks in drawing order (per stroke a start block, its pieces, then
     its blanked jump) as a Layout, with the lit flags and the lit/blanked run lengths."""
@@ -402,8 +405,7 @@ def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_r
     blank_size = move + settles
     blk_key = np.concatenate([2 * first, 2 * a + 1, 2 * last + 1])
     blk_base = np.concatenate([s[first], s[a], s[last]])
-    blk_step = np.concatenate([np.zeros(S), piece_len / np.maximum(piece_n, 1) if ramp is None
-                               else ramp[4], np.zeros(S)])
+    blk_step = np.concatenate([np.zeros(S), piece_step, np.zeros(S)])
     blk_move = np.concatenate([np.zeros(S, dtype=np.int64), piece_n, np.zeros(S, dtype=np.int64)])
     blk_rep = np.concatenate([start_rep, piece_rep, blank_size]).astype(np.int64)
     blk_stroke = np.concatenate([np.arange(S), piece_stroke, np.arange(S)])
@@ -414,7 +416,7 @@ def _blocks(s, px, py, first, last, a, piece_len, piece_n, piece_stroke, start_r
     blk_ramp = None
     if ramp is not None:
         z = np.zeros(S)
-        blk_ramp = tuple(np.concatenate([z, r, z])[o] for r in ramp[:4])
+        blk_ramp = tuple(np.concatenate([z, r, z])[o] for r in ramp)
     blk_size = blk_move + blk_rep
     blk_end = np.cumsum(blk_size)
     lit_count = np.bincount(blk_stroke[blk_lit], weights=blk_size[blk_lit],

@@ -46,14 +46,15 @@ def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing, piece
     closed_sharp : (S,) bool
         Closed strokes whose closure is a sharp corner.
     """
+    def at(i):
+        return np.column_stack([px[i], py[i]])
+
     S = len(first)
     is_dot = lengths == 0
     closed = ~is_dot & (px[first] == px[last]) & (py[first] == py[last])
     closed_sharp = np.zeros(S, dtype=bool)
     cs = np.flatnonzero(closed & (last - first >= 2))
     if cs.size:
-        def at(i):
-            return np.column_stack([px[i], py[i]])
         closed_sharp[cs] = turn_deg(at(last[cs]) - at(last[cs] - 1),
                                     at(first[cs] + 1) - at(first[cs])) > timing.corner_angle_deg
     end_rep = np.where(closed, np.where(closed_sharp, timing.corner_dwell, 0), timing.end_dwell)
@@ -62,8 +63,6 @@ def dwells(px, py, first, last, lengths, piece_stroke, piece_last, timing, piece
         b = np.asarray(piece_end)
         corner = np.flatnonzero(~piece_last)
         if corner.size:
-            def at(i):
-                return np.column_stack([px[i], py[i]])
             turn = turn_deg(at(b[corner]) - at(b[corner] - 1), at(b[corner] + 1) - at(b[corner]))
             piece_rep[corner] = np.maximum(piece_rep[corner], settle(turn))
         stop = np.flatnonzero(piece_last & ~closed[piece_stroke])

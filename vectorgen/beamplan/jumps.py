@@ -152,7 +152,7 @@ class LagJumps(StraightJumps):
         self.model = model
         self.limit = float(drive_limit)
         self.rate = int(rate)
-        gain = float(np.abs(np.linalg.eigvals(model.matrix)).min())  # mm per FS, weakest axis
+        gain = model.weakest_mm_per_fs
         self.tol_fs = float(tol_mm) / gain
         self._fs_per_mm = 1.0 / gain
         self._paths: list | None = None
