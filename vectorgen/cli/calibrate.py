@@ -54,7 +54,7 @@ def cmd_pattern(args) -> int:
     from ..files import check_output_path, transaction
     from ..pipeline import report_line
     from ..preview import phosphor_image, write_png
-    from ..sinks import signal_extensions, write_signal
+    from ..sinks import write_signal
     from .render import _check_seconds, load_setup, repeats_for
 
     if args.output is None and not args.play:
@@ -65,12 +65,7 @@ def cmd_pattern(args) -> int:
     if args.sheet is None:
         raise VectorgenError(f"the {args.kind} pattern writes its measurement sheet: give "
                              f"--sheet SHEET.csv")
-    if args.play:
-        from .. import live
-
-        live.sounddevice()                  # PortAudio present? (before any file is written)
-    if args.output is not None:
-        check_output_path(args.output, signal_extensions())
+    _check_signal_outputs(args)
     check_output_path(args.sheet, (".csv",))
     if args.output is not None and os.path.abspath(args.sheet) == os.path.abspath(args.output):
         raise VectorgenError("the signal (-o) and the sheet (--sheet) must be different files")
@@ -183,21 +178,29 @@ def _write_report(args, rep: dict, repeats: int, frame_samples: int, rate: int,
     atomic_write_bytes(args.report, (json.dumps(rep, indent=2) + "\n").encode())
 
 
+def _check_signal_outputs(args) -> None:
+    """Before anything is written: PortAudio is present for --play, and -o names a signal
+    file that may be written."""
+    from ..files import check_output_path
+    from ..sinks import signal_extensions
+
+    if args.play:
+        from .. import live
+
+        live.sounddevice()
+    if args.output is not None:
+        check_output_path(args.output, signal_extensions())
+
+
 def _signal_pattern(args) -> int:
     """`pattern step` and `pattern ztiming`: no targets, so no sheet."""
     from ..files import check_output_path
-    from ..sinks import signal_extensions
     from .render import _check_seconds
 
     if args.sheet is not None:
         raise VectorgenError(f"the {args.kind} pattern has no targets to measure and writes no "
                              f"sheet: leave out --sheet")
-    if args.play:
-        from .. import live
-
-        live.sounddevice()                  # PortAudio present? (before any file is written)
-    if args.output is not None:
-        check_output_path(args.output, signal_extensions())
+    _check_signal_outputs(args)
     if args.preview:
         check_output_path(args.preview, (".png",))
     _check_report_path(args)
