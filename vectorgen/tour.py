@@ -109,6 +109,29 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
     return dist, near
 
 
+def _grid_cell(span, n: int, fill: float) -> float:
+    """The cell of a uniform grid over `span` ((2,) mm) that holds about `fill` of n points
+    each (along the longer side when the points lie on a line; 1 when all are one point)."""
+    area = float(span[0] * span[1])
+    cell = float(np.sqrt(area * fill / n)) if area > 0 else float(span.max()) * fill / n
+    return cell if cell > 0 else 1.0
+
+
+def _grid_cells(xy, lo, span, cell: float):
+    """(nx, ny, each point's cell id, row by row) of the grid of `cell` from `lo` over `span`."""
+    nx, ny = int(span[0] // cell) + 1, int(span[1] // cell) + 1
+    gx = np.minimum(((xy[:, 0] - lo[0]) // cell).astype(np.int64), nx - 1)
+    gy = np.minimum(((xy[:, 1] - lo[1]) // cell).astype(np.int64), ny - 1)
+    return nx, ny, gy * nx + gx
+
+
+def _by_cell(cid, cells: int):
+    """(the points sorted by cell, stable; where each cell's points start in that order, and
+    one past the last): a row of cells is then one slice."""
+    o = np.argsort(cid, kind="stable")
+    return o, np.searchsorted(cid[o], np.arange(cells + 1))
+
+
 def _grid_knn(xy: np.ndarray, queries: np.ndarray, k: int):
     """The k nearest points of xy to each query, exactly as the distance matrix finds them
     (by squared distance, then index), from a uniform grid.
@@ -123,23 +146,16 @@ def _grid_knn(xy: np.ndarray, queries: np.ndarray, k: int):
     n, m = len(xy), len(queries)
     lo = np.minimum(xy.min(axis=0), queries.min(axis=0))
     span = np.maximum(xy.max(axis=0), queries.max(axis=0)) - lo
-    area = float(span[0] * span[1])
-    cell = np.sqrt(area * GRID_FILL / n) if area > 0 else float(span.max()) * GRID_FILL / n
-    if not cell > 0:                               # every point in one place
-        cell = 1.0
+    cell = _grid_cell(span, n, GRID_FILL)
     for _ in range(8):
-        nx, ny = int(span[0] // cell) + 1, int(span[1] // cell) + 1
-        gx = np.minimum(((xy[:, 0] - lo[0]) // cell).astype(np.int64), nx - 1)
-        gy = np.minimum(((xy[:, 1] - lo[1]) // cell).astype(np.int64), ny - 1)
-        cid = gy * nx + gx
+        nx, ny, cid = _grid_cells(xy, lo, span, cell)
         fill = n / len(np.unique(cid))
         if fill <= 2 * GRID_FILL or nx * ny > 16 * n:
             break
         cell /= 2.0
     if fill > 4 * GRID_FILL:                       # clustered beyond what a grid serves
         return None
-    o = np.argsort(cid, kind="stable")
-    start = np.searchsorted(cid[o], np.arange(nx * ny + 1))
+    o, start = _by_cell(cid, nx * ny)
     sx, sy = xy[o, 0], xy[o, 1]
     qx, qy = queries[:, 0], queries[:, 1]
     qgx = np.clip(((qx - lo[0]) // cell).astype(np.int64), 0, nx - 1)
@@ -847,18 +863,12 @@ class _Remaining:
         n = len(xy)
         lo = xy.min(axis=0)
         span = xy.max(axis=0) - lo
-        cell = float(np.sqrt(span[0] * span[1] * 2.0 / n)) if n else 1.0
-        if not cell > 0:                      # all on a line, or one point
-            cell = float(span.max()) * 2.0 / n if span.max() > 0 else 1.0
-        nx, ny = int(span[0] // cell) + 1, int(span[1] // cell) + 1
-        gx = np.minimum((xy[:, 0] - lo[0]) // cell, nx - 1).astype(np.int64)
-        gy = np.minimum((xy[:, 1] - lo[1]) // cell, ny - 1).astype(np.int64)
-        cid = gy * nx + gx
-        o = np.argsort(cid, kind="stable")
+        cell = _grid_cell(span, n, 2.0) if n else 1.0
+        nx, ny, cid = _grid_cells(xy, lo, span, cell)
+        o, self.start = _by_cell(cid, nx * ny)
         self.xy, self.ids = xy, ids
         self.gx_, self.gy_ = xy[o, 0], xy[o, 1]
         self.gid, self.gst = ids[o], self.stroke[ids[o]]
-        self.start = np.searchsorted(cid[o], np.arange(nx * ny + 1))
         self.grid = (float(lo[0]), float(lo[1]), cell, nx, ny)
         self.in_grid = self.left
 
