@@ -77,13 +77,8 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
     GRID_POINTS (which may order equal distances otherwise)."""
     xy, queries = np.asarray(xy, dtype=float), np.asarray(queries, dtype=float)
     big = max(len(xy), len(queries))
-    if big > GRID_POINTS:
-        from scipy.spatial import cKDTree
-
-        d, j = cKDTree(xy).query(queries, k=k, workers=workers)
-        return np.asarray(d).reshape(len(queries), k), np.asarray(j).reshape(len(queries), k)
-    if big > BRUTE_FORCE_POINTS and k < len(xy):
-        found = _grid_knn(xy, queries, k)
+    if big > BRUTE_FORCE_POINTS and (big > GRID_POINTS or k < len(xy)):
+        found = _grid_knn(xy, queries, k) if big <= GRID_POINTS else None
         if found is not None:
             return found
         from scipy.spatial import cKDTree
