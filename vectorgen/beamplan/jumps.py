@@ -133,7 +133,7 @@ class LagJumps(StraightJumps):
     Parameters
     ----------
     response : vectorgen.response.Response
-        First order (tau per axis) uses `vectorgen.response.fastest_jump_xy`; second order a
+        First order (tau per axis) uses `vectorgen.response.jump_paths_xy`; second order a
         raised-cosine move long enough that the compensated drive stays within the limit.
     model : DeflectionModel
         mm <-> drive.
