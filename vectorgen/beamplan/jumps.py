@@ -155,7 +155,6 @@ class LagJumps(StraightJumps):
         gain = model.weakest_mm_per_fs
         self.tol_fs = float(tol_mm) / gain
         self._fs_per_mm = 1.0 / gain
-        self._paths: list | None = None
 
     def _drive(self, pts_mm: np.ndarray) -> np.ndarray:
         return self.model.mm_to_drive(pts_mm)
