@@ -69,6 +69,7 @@ GRID_POINTS = 12_000
 KNN_QUERIES_PER_PASS = 64
 GRID_FILL = 2.0                 # points per occupied grid cell the grid aims at
 GRID_QUERIES_PER_PASS = 512
+REMAINING_DIRECT = 4096         # candidates left below which a used-up list measures them all
 
 
 def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
@@ -838,11 +839,14 @@ def _lists_from_candidates(geo, nb, nd, stroke, flip, picks):
 class _Remaining:
     """The nearest candidate of a stroke not drawn yet, for when a neighbour list is used up.
 
-    The candidates sit in a uniform grid of about two per cell (sorted by cell, so a row of
-    cells is one slice). A search looks through a window of cells round the query point,
-    doubling it until it holds a live candidate, and widens it once more if the nearest one
-    found is farther away than the window's edge; so the answer is exact. Once the dead are
-    more than half of the grid it is rebuilt from the live candidates only."""
+    While more than `REMAINING_DIRECT` candidates are left they sit in a uniform grid of about
+    two per cell (sorted by cell, so a row of cells is one slice). A search looks through a
+    window of cells round the query point, doubling it until it holds a live candidate, and
+    widens it once more if the nearest one found is farther away than the window's edge; so
+    the answer is exact. Fewer candidates are simply all measured (a few dozen numpy calls on
+    a window cost more than one pass over a few thousand points); equal distances then go to
+    the lowest candidate id. Once the dead are more than half of what was built, it is rebuilt
+    from the live candidates only."""
 
     def __init__(self, xy, ids, stroke, S):
         self.stroke = stroke
@@ -856,16 +860,22 @@ class _Remaining:
         keep = self.live[self.stroke[self.ids]]
         xy, ids = self.xy[keep], self.ids[keep]
         n = len(xy)
+        self.in_grid = self.left
+        self.xy, self.ids = xy, ids
+        self.direct = n <= REMAINING_DIRECT
+        if self.direct:
+            self.grid = ()
+            self.dx, self.dy = xy[:, 0].copy(), xy[:, 1].copy()
+            self.dst = self.stroke[ids]
+            return
         lo = xy.min(axis=0)
         span = xy.max(axis=0) - lo
         cell = _grid_cell(span, n, 2.0) if n else 1.0
         nx, ny, cid = _grid_cells(xy, lo, span, cell)
         o, self.start = _by_cell(cid, nx * ny)
-        self.xy, self.ids = xy, ids
         self.gx_, self.gy_ = xy[o, 0], xy[o, 1]
         self.gid, self.gst = ids[o], self.stroke[ids[o]]
         self.grid = (float(lo[0]), float(lo[1]), cell, nx, ny)
-        self.in_grid = self.left
 
     def drop(self, t):
         self.live[t] = False
@@ -874,6 +884,10 @@ class _Remaining:
     def nearest(self, x, y) -> int:
         if self.grid is None or 2 * self.left < self.in_grid:
             self._build()
+        if self.direct:
+            d2 = (self.dx - x) ** 2 + (self.dy - y) ** 2
+            d2[~self.live[self.dst]] = np.inf
+            return int(self.ids[int(d2.argmin())])
         x0g, y0g, cell, nx, ny = self.grid
         cx = min(max(int((x - x0g) // cell), 0), nx - 1)
         cy = min(max(int((y - y0g) // cell), 0), ny - 1)
