@@ -281,6 +281,23 @@ def test_an_input_order_better_than_greedy_is_kept_or_improved():
     assert tour.cost == pytest.approx(49.0)
 
 
+@pytest.mark.parametrize("seed", range(3))
+def test_a_search_stopped_by_its_gain_share_is_still_never_costlier_than_greedy(seed):
+    # min_gain = 10: no round gains ten times the cost, so the search stops after its first
+    # improving round; it must still beat the independent greedy walk and the input order
+    starts, ends, rings = scattered(300, 40 + seed, ring_share=0.2, dot_share=0.1)
+    cost = lambda d: 2.0 + 0.5 * np.sqrt(d)
+    early = plan_tour(starts, ends, rings, cost=cost, budget_s=LONG, min_gain=10.0)
+    full = plan_tour(starts, ends, rings, cost=cost, budget_s=LONG)
+    greedy = frame_cost(starts, ends, rings, *reference_greedy(starts, ends, rings), cost)
+    assert early.cost == pytest.approx(frame_cost(starts, ends, rings, early.order,
+                                                  early.reverse, early.rotate, cost), rel=1e-12)
+    assert early.cost < greedy - 1e-9
+    assert early.cost <= input_cost(starts, ends, cost) + 1e-9
+    # control: it did stop early, the search left to converge goes further
+    assert full.cost < early.cost - 1e-9
+
+
 # --- how much shorter ----------------------------------------------------------------------------
 
 def test_blanked_travel_is_at_most_085_of_greedy_on_150_scattered_strokes():
@@ -413,6 +430,8 @@ def test_bad_input_is_refused_in_one_line_naming_the_parameter():
         plan_tour(*good, cost=lambda d: -d)
     with pytest.raises(InputError, match=r"budget_s must be > 0 \(budget_s=0\)"):
         plan_tour(*good, budget_s=0)
+    with pytest.raises(InputError, match=r"min_gain must be >= 0 \(min_gain=-0.1\)"):
+        plan_tour(*good, min_gain=-0.1)
     with pytest.raises(InputError, match=r"closed_rings\[0\]"):
         plan_tour(np.zeros((2, 2)), np.array([[0.0, 0.0], [1.0, 1.0]]),
                   [np.array([[1.0, 1.0], [2.0, 1.0], [1.0, 1.0]]), None])

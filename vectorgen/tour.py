@@ -25,9 +25,10 @@ segments never change: only the order, the direction and the starting vertex of 
 3. entry vertices: between rounds every closed stroke whose neighbours changed is re-entered at
    the vertex (of all its vertices) that makes its two jumps cheapest.
 
-The search stops when no move improves the tour or when its time budget is spent
+The search stops when no move improves the tour, when its time budget is spent
 (`default_budget_s`: 15 ms + 16 us per stroke, the whole call included; the Python loop that
-applies moves checks the clock). The result never costs more than the input order or the
+applies moves checks the clock) or, if asked, after a given number of rounds or after a round
+that gained less than a given share of the cost (both fixed by the input alone). The result never costs more than the input order or the
 nearest-neighbour tour: the search starts from the cheaper of the two and only takes moves that
 lower the cost, and the final tour is costed again from scratch and compared with both.
 
@@ -358,7 +359,7 @@ def greedy_tour(starts, ends, closed_rings=None, cost=None) -> Tour:
 
 
 def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
-              budget_s=None, max_rounds: int | None = None) -> Tour:
+              budget_s=None, max_rounds: int | None = None, min_gain: float = 0.0) -> Tour:
     """A short closed tour through the strokes: nearest neighbour, then 2-opt and Or-opt moves
     with free stroke direction and free entry vertex of closed strokes, within a time budget.
 
@@ -387,6 +388,11 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         Stop the local search after this many rounds of moves instead (with ``budget_s =
         math.inf``): the same input then always gives the same tour, whatever the machine's
         load (files and live output must agree sample for sample).
+    min_gain : float, default 0
+        Also stop after a round that lowered the tour's cost by less than this share of what
+        it costs now (0.005: half a per cent): later rounds would gain less still. It depends
+        on the input only, so the same input still gives the same tour. 0: go on while any
+        move improves the tour.
 
     Returns
     -------
@@ -397,7 +403,8 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
     ------
     InputError
         Arrays of the wrong shape or not finite, a ring that does not start and end at its
-        stroke's first point, a cost that is not a non-decreasing function, budget_s <= 0.
+        stroke's first point, a cost that is not a non-decreasing function, budget_s <= 0,
+        min_gain < 0.
 
     Notes
     -----
@@ -428,6 +435,8 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         budget_s = default_budget_s(geo.S)
     elif not budget_s > 0:
         raise InputError(f"budget_s must be > 0 (budget_s={budget_s})", parameter="budget_s")
+    if not min_gain >= 0:
+        raise InputError(f"min_gain must be >= 0 (min_gain={min_gain})", parameter="min_gain")
     S = geo.S
     given = (np.arange(S), np.zeros(S, dtype=bool), np.zeros(S, dtype=np.int64))
     # one KD-tree query serves both phases
@@ -441,7 +450,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
     if S >= 2:
         search = _Search(geo, cost_fn, *start, fixed_rotation=0 if first_fixed else -1,
                          lists=lists)
-        search.run(t0 + budget_s, max_rounds)
+        search.run(t0 + budget_s, max_rounds, min_gain)
         found = search.state()
         found_cost = _cycle_cost(geo, cost_fn, *found)
         if found_cost < best_cost:
@@ -987,11 +996,12 @@ class _Search:
         self.nb, self.nc = nb, nc
         self.rotated_since_lists = False
 
-    def run(self, deadline: float, max_rounds: int | None = None) -> None:
+    def run(self, deadline: float, max_rounds: int | None = None, min_gain: float = 0.0) -> None:
         self._neighbour_lists()
         self._layout()
         rebuilds = 0
         rounds = 0
+        before = float(np.sum(self.J))
         while time.perf_counter() < deadline and (max_rounds is None or rounds < max_rounds):
             rounds += 1
             was_active = self.active.copy()
@@ -999,6 +1009,10 @@ class _Search:
             if len(self.rings):
                 improved |= self._rotate_rings(was_active | self.active)
             if improved:
+                now = float(np.sum(self.J))
+                if before - now < min_gain * now:
+                    break
+                before = now
                 continue
             if self.rotated_since_lists and rebuilds < 3:
                 # closed strokes now start at other vertices: their neighbours are stale
