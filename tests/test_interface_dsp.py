@@ -311,6 +311,37 @@ def test_true_peak_matches_resample_poly_on_a_tiled_frame():
     assert np.any(ours > np.abs(x).max(axis=0) + 0.01)      # control: it sees between samples
 
 
+def test_the_frame_check_finds_the_overshoot_resample_poly_finds():
+    # Reference: scipy.signal.resample_poly 4x on the frame tiled three times. The frame check
+    # (correction.inter_sample_peaks) interpolates only the gaps that can reach full scale:
+    # wherever the band-limited path goes beyond 1 it must read the same peak, whole or in
+    # chunks with the neighbouring samples given; below 1 it reads at most the true peak.
+    from vectorgen.correction import inter_sample_peaks
+
+    # every sample within full scale (0.98), the path between them beyond it (1.009 .. 1.042),
+    # or within it (the last: 0.95 * 0.98 / 0.7)
+    for seed, n, top in ((1, 300, 0.98), (2, 1000, 0.98), (3, 257, 0.98), (4, 5000, 0.98),
+                         (5, 700, 0.95 * 0.98)):
+        x = _band_limited_frame(n, 0.3, seed)
+        x *= top / np.abs(x).max()
+        ref = np.abs(_resample_poly_model(x, 4)).max()
+        assert ref > 1.005 or top < 0.98           # (the frames do what they are for)
+        peak, at, axis = inter_sample_peaks(x)
+        if ref > 1.0 + 3e-3:
+            # (two 4x interpolators with different filters: they differ by up to 2e-3 here)
+            assert abs(peak - ref) < 3e-3, (seed, peak, ref)
+            assert abs(x[at, axis]) > 0.5          # the peak is reported where it is
+        else:
+            assert np.abs(x).max() - 1e-12 <= peak <= ref + 3e-3
+        # the same frame in chunks of 97 samples, each with 12 samples either side
+        T, parts = 12, []
+        ext = np.concatenate([x[-T:], x, x[:T]])
+        for c0 in range(0, n, 97):
+            c1 = min(n, c0 + 97)
+            parts.append(inter_sample_peaks(x[c0:c1], (ext[c0:c0 + T], ext[c1 + T:c1 + 2 * T]))[0])
+        assert abs(max(parts) - peak) < 1e-12
+
+
 def test_oversampled_frame_passes_through_the_samples_and_matches_resample_poly():
     x = _band_limited_frame(256, 0.35, 3)
     y = oversample_periodic(x, 8)

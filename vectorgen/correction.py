@@ -9,6 +9,7 @@ silently; a sample beyond full scale is a `FullScaleError` naming where in the d
 from __future__ import annotations
 
 import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
 
 from .channels import ChannelMap
 from .deflection import DeflectionModel
@@ -76,7 +77,22 @@ def _tp_phases() -> np.ndarray:
     return _TP_PHASES
 
 
-TP_GAPS_PER_PASS = 2048
+TP_BLOCKS_PER_PASS = 256      # blocks of TP_TAPS gaps interpolated at a time (arrays < 128 KiB)
+_TP_BAND = None
+
+
+def _tp_band() -> np.ndarray:
+    """(3 TP_TAPS - 1, 3 TP_TAPS) weights: a window of 35 samples times this gives the three
+    in-between points of each of the block's 12 gaps (column 3 o + p: gap o, phase p)."""
+    global _TP_BAND
+    if _TP_BAND is None:
+        h = _tp_phases()
+        B = TP_TAPS
+        band = np.zeros((B + 2 * TP_TAPS - 1, 3 * B))
+        for o in range(B):
+            band[o:o + 2 * TP_TAPS, 3 * o:3 * o + 3] = h
+        _TP_BAND = band
+    return _TP_BAND
 
 
 def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[float, int, int]:
@@ -86,9 +102,14 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
 
     Only the gaps that can reach beyond full scale are interpolated: between samples k and
     k + 1 the path is sum_j h_j x_(k+j), so it stays within |x_k| + H1 max_j |x_(k+j) - x_k|
-    (H1 = sum |h_j|); gaps where that bound is below 1 are passed over. `halo`, for a chunk of
-    a longer frame: the TP_TAPS samples before and after it ((TP_TAPS, 2) each); without it
-    the frame wraps round (it loops)."""
+    (H1 = sum |h_j|). That bound is taken a block of TP_TAPS samples at a time, from the
+    block's largest |x| and the range of x over it and both neighbours (which hold every tap
+    of its gaps); only the gaps of blocks where it reaches 1 are interpolated, each block's
+    twelve at once (its window of 35 samples times a band of the weights). So a peak beyond
+    full scale is exact; below it the result lies between the sample peak and the true peak.
+    `halo`, for a
+    chunk of a longer frame: the TP_TAPS samples before and after it ((TP_TAPS, 2) each);
+    without it the frame wraps round (it loops)."""
     n = len(drive)
     if n < 2:
         return (float(np.abs(drive).max()) if drive.size else 0.0), 0, 0
@@ -100,44 +121,43 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
                             np.tile(drive, (TP_TAPS // n + 1, 1))[:TP_TAPS]])
     else:
         ext = np.concatenate([halo[0], drive, halo[1]])
-    best, at, axis = float(np.abs(drive).max()), 0, 0
+    B = TP_TAPS
+    L = len(ext)
+    # room after the last gap's taps for a whole block's window (zeros, never a gap's tap)
+    ext = np.concatenate([ext, np.zeros((B, ext.shape[1]))])
+    starts = np.arange(0, L, B)
+    hb = _tp_band()
+    best, at, axis = float(max(drive.max(), -drive.min())), 0, 0
     for ax in range(drive.shape[1]):
         col = ext[:, ax]
-        hi, lo = _window_range(col, n)
-        x = col[TP_TAPS:TP_TAPS + n]
-        bound = np.abs(x) + h1 * np.maximum(hi - x, x - lo)
-        gaps = np.flatnonzero(bound > 1.0)
-        if not gaps.size:
+        bmax = np.maximum.reduceat(col[:L], starts)
+        bmin = np.minimum.reduceat(col[:L], starts)
+        hi, lo = bmax.copy(), bmin.copy()            # over the block and both neighbours
+        np.maximum(hi[1:], bmax[:-1], out=hi[1:])
+        np.maximum(hi[:-1], bmax[1:], out=hi[:-1])
+        np.minimum(lo[1:], bmin[:-1], out=lo[1:])
+        np.minimum(lo[:-1], bmin[1:], out=lo[:-1])
+        hi -= lo
+        hi *= h1
+        hi += np.maximum(bmax, -bmin)
+        hi[0] = 0.0                                  # blocks of halo rows only: no gap
+        hi[starts >= TP_TAPS + n] = 0.0
+        flagged = np.flatnonzero(hi > 1.0)
+        if not flagged.size:
             continue
-        # taps k - 11 .. k + 12 of gap k lie within col (it has TP_TAPS samples either side);
-        # a few thousand gaps at a time, so the gathered taps stay in memory already mapped
-        taps = np.arange(1, 2 * TP_TAPS + 1, dtype=np.int32)
-        for g0 in range(0, len(gaps), TP_GAPS_PER_PASS):
-            g = gaps[g0:g0 + TP_GAPS_PER_PASS]
-            v = np.abs(np.take(col, g.astype(np.int32)[:, None] + taps) @ h).max(axis=1)
+        # gap k (between samples k and k + 1) is ext row k + TP_TAPS, its taps rows k + 1 ..
+        # k + 24; the gaps of block b take rows bB - 11 .. bB + 23, one window: the 4x path
+        # of its B gaps is that window times a band of the interpolator's weights
+        windows = sliding_window_view(col, B + 2 * TP_TAPS - 1)
+        for f0 in range(0, len(flagged), TP_BLOCKS_PER_PASS):
+            f = flagged[f0:f0 + TP_BLOCKS_PER_PASS]
+            v = np.abs(windows[f * B + 1 - TP_TAPS] @ hb).reshape(len(f), B, 3).max(axis=2)
+            row = f[:, None] * B + np.arange(B)
+            v[(row < TP_TAPS) | (row >= TP_TAPS + n)] = 0.0
             j = int(np.argmax(v))
-            if v[j] > best:
-                best, at, axis = float(v[j]), int(g[j]), ax
+            if v.flat[j] > best:
+                best, at, axis = float(v.flat[j]), int(row.flat[j]) - TP_TAPS, ax
     return best, at, axis
-
-
-def _window_range(col: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Upper and lower bounds of col over at least +-TP_TAPS samples around each of its n
-    middle samples (col has TP_TAPS extra on each side): block maxima and minima over blocks of
-    TP_TAPS, each sample taking its own block and both neighbours (a cheap, slightly wider
-    window)."""
-    B = TP_TAPS
-    m = -(-len(col) // B)
-    if m * B != len(col):
-        col = np.concatenate([col, np.full(m * B - len(col), col[-1])])
-    blocks = col.reshape(m, B)
-    bmax, bmin = blocks.max(axis=1), blocks.min(axis=1)
-    hi, lo = bmax.copy(), bmin.copy()
-    np.maximum(hi[1:], bmax[:-1], out=hi[1:])
-    np.maximum(hi[:-1], bmax[1:], out=hi[:-1])
-    np.minimum(lo[1:], bmin[:-1], out=lo[1:])
-    np.minimum(lo[:-1], bmin[1:], out=lo[:-1])
-    return np.repeat(hi, B)[B:B + n], np.repeat(lo, B)[B:B + n]
 
 
 TRUE_PEAK_SLACK = 0.002     # 0.2 % of full scale (0.1 mm on a 50 mm half-width) is let pass
@@ -209,15 +229,17 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
             a += j - i
         return np.concatenate(parts)
 
+    T = TP_TAPS if true_peak else 0     # each chunk with the samples either side of it
     for c0 in range(0, n, CHUNK):
         c1 = min(n, c0 + CHUNK)
-        d = drive(c0, c1)
+        wide = span(c0 - T, c1 + T) if T else drive(c0, c1)
+        d = wide[T:len(wide) - T]
         dlo, dhi = d.min(), d.max()
         if not (-1.0 <= dlo and dhi <= 1.0):
             return _whole(plan, model, chain, cmap, rate, true_peak)
         lo, hi = min(lo, dlo), max(hi, dhi)
         if true_peak and max(-dlo, dhi) > TP_SCREEN_CHUNK:
-            halo = (span(c0 - TP_TAPS, c0), span(c1, c1 + TP_TAPS))
+            halo = (wide[:T], wide[len(wide) - T:])
             p, i, ax = inter_sample_peaks(d, halo)
             if p > tp:
                 tp, tp_at, tp_axis = p, c0 + i, ax
