@@ -107,9 +107,8 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
     of its gaps); only the gaps of blocks where it reaches 1 are interpolated, each block's
     twelve at once (its window of 35 samples times a band of the weights). So a peak beyond
     full scale is exact; below it the result lies between the sample peak and the true peak.
-    `halo`, for a
-    chunk of a longer frame: the TP_TAPS samples before and after it ((TP_TAPS, 2) each);
-    without it the frame wraps round (it loops)."""
+    `halo`, for a chunk of a longer frame: the TP_TAPS samples before and after it
+    ((TP_TAPS, 2) each); without it the frame wraps round (it loops)."""
     n = len(drive)
     if n < 2:
         return (float(np.abs(drive).max()) if drive.size else 0.0), 0, 0
