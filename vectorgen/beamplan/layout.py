@@ -11,6 +11,7 @@ Blanked samples lie on the jumps instead (`at`, `blank_x`, `blank_y`).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -96,6 +97,13 @@ class Layout:
     blank_y: np.ndarray
     ramp: tuple | None = None
 
+    @cached_property
+    def pz(self) -> np.ndarray:
+        """The vertices as px + i py (for `positions`), made on first use."""
+        z = np.empty(len(self.px), dtype=complex)
+        z.real, z.imag = self.px, self.py
+        return z
+
     def positions(self, c0: int, c1: int) -> tuple[np.ndarray, np.ndarray]:
         """x and y (mm) of samples c0 .. c1 - 1, by linear interpolation along the axis."""
         b0 = int(np.searchsorted(self.end, c0, side="right"))
@@ -111,8 +119,10 @@ class Layout:
             param = ramp_distance(mult, *(np.repeat(a[b0:b1], sizes) for a in (
                 self.step, self.move, *self.ramp)))
         param += np.repeat(self.base[b0:b1], sizes)
-        x = np.interp(param, self.s, self.px)
-        y = np.interp(param, self.s, self.py)
+        # x + iy in one interpolation: one search of the axis for both (the same arithmetic
+        # on each part as two real ones)
+        z = np.interp(param, self.s, self.pz)
+        x, y = z.real.copy(), z.imag.copy()
         i0, i1 = np.searchsorted(self.at, [c0, c1])
         if i1 > i0:
             j = self.at[i0:i1] - c0
