@@ -381,27 +381,31 @@ class Renderer:
 
         lag = np.asarray(resp.lag_s, dtype=float)
 
-        def axis_speed(u, d):
-            """Largest speed (FS/s) along unit directions d at drive u for which
-            u + lag du/dt stays within the limit: LIT_DRIVE_LIMIT, or half-way from |u| to
-            full scale where a stroke lies further out already."""
-            limit = np.maximum(LIT_DRIVE_LIMIT, np.abs(u) + (1.0 - np.abs(u)) / 2)
-            room = np.maximum(limit - np.sign(d) * u, 0.0)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                s = np.where((np.abs(d) > 0) & (lag > 0), room / (lag * np.abs(d)), np.inf)
-            return s.min(axis=1)
-
         def cap(px, py):
-            # each segment's speed limit at both its ends, travelling along it
+            # each segment's speed limit at both its ends, travelling along it: on axis a the
+            # drive u + lag du/dt stays within the limit (LIT_DRIVE_LIMIT, or half-way from
+            # |u| to full scale where a stroke lies further out already) while
+            # room_a = limit - sign(du_a) u_a >= lag_a |du_a/dt|; a segment of norm mm whose
+            # drive changes by f_a may so be drawn at room_a norm / (lag_a |f_a|) mm/s
             u = model.drive_from_xy(px, py)
-            d_mm = np.column_stack([np.diff(px), np.diff(py)])
-            d_fs = d_mm @ inv.T
-            norm_mm = np.hypot(*d_mm.T)
-            fs_per_mm = np.hypot(*d_fs.T) / np.maximum(norm_mm, 1e-300)
-            unit = d_fs / np.maximum(np.hypot(*d_fs.T), 1e-300)[:, None]
-            lim = np.minimum(axis_speed(u[:-1], unit), axis_speed(u[1:], unit))
-            mm_s = np.where((fs_per_mm > 0) & (norm_mm > 0),
-                            lim / np.maximum(fs_per_mm, 1e-300), np.inf)
+            dx, dy = np.diff(px), np.diff(py)
+            norm = np.sqrt(dx * dx + dy * dy)
+            mm_s = np.full(len(dx), np.inf)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                for a in (0, 1):
+                    if not lag[a] > 0:
+                        continue
+                    f = inv[a, 0] * dx + inv[a, 1] * dy
+                    ua = u[:, a]
+                    limit = np.maximum(LIT_DRIVE_LIMIT, 0.5 + 0.5 * np.abs(ua))
+                    sgn = np.sign(f)
+                    room = np.minimum(limit[:-1] - sgn * ua[:-1], limit[1:] - sgn * ua[1:])
+                    np.maximum(room, 0.0, out=room)
+                    room *= norm
+                    f = np.abs(f)
+                    f *= lag[a]
+                    np.minimum(mm_s, np.where(f > 0, room / f, np.inf), out=mm_s)
+            mm_s[~(norm > 0)] = np.inf
             return np.maximum(mm_s, floor) / rate
         return cap
 
