@@ -64,10 +64,12 @@ BUDGET_PER_STROKE_S = 16e-6
 MAX_SEGMENT = 3                 # longest run of strokes an Or-opt move carries
 # Up to this many points, neighbours come from a distance matrix; up to GRID_POINTS from a
 # uniform grid (the same answers, ties by index); beyond, from a KD-tree: a drawing of a few
-# thousand strokes does not pay for importing scipy.spatial (about 0.5 s).
-BRUTE_FORCE_POINTS = 400
+# thousand strokes does not pay for importing scipy.spatial (about 0.5 s). The matrix is the
+# faster of the first two up to about 550 points (k = 10: 2.4 ms against 2.8 at 510 points,
+# 3.5 against 3.1 at 600).
+BRUTE_FORCE_POINTS = 512
 GRID_POINTS = 12_000
-KNN_QUERIES_PER_PASS = 64
+KNN_BLOCK = 32_768              # distances per block of the distance-matrix search
 GRID_FILL = 2.0                 # points per occupied grid cell the grid aims at
 GRID_QUERIES_PER_PASS = 512
 REMAINING_DIRECT = 4096         # candidates left below which a used-up list measures them all
@@ -88,21 +90,35 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
         d, j = cKDTree(xy).query(queries, k=k, workers=workers)
         return np.asarray(d).reshape(len(queries), k), np.asarray(j).reshape(len(queries), k)
     kk = min(k, len(xy))
+    n = len(xy)
     dist = np.empty((len(queries), kk))
     near = np.empty((len(queries), kk), dtype=np.int64)
+    px, py = np.ascontiguousarray(xy[:, 0]), np.ascontiguousarray(xy[:, 1])
     # a few dozen queries at a time: the distance block stays small enough to be reused
     # instead of fresh memory (a page fault per 4 KiB) for every call
-    for a in range(0, len(queries), KNN_QUERIES_PER_PASS):
-        q = queries[a:a + KNN_QUERIES_PER_PASS]
-        d2 = (q[:, 0, None] - xy[None, :, 0]) ** 2 + (q[:, 1, None] - xy[None, :, 1]) ** 2
-        if k < len(xy):
-            j = np.argpartition(d2, k - 1, axis=1)[:, :k]
-        else:
-            j = np.broadcast_to(np.arange(len(xy)), (len(q), len(xy))).copy()
-        dd = np.take_along_axis(d2, j, axis=1)
-        o = np.lexsort((j, dd), axis=1)            # by distance, then index (as the tree does)
-        dist[a:a + len(q)] = np.sqrt(np.take_along_axis(dd, o, axis=1))
-        near[a:a + len(q)] = np.take_along_axis(j, o, axis=1)
+    rows = max(8, KNN_BLOCK // max(n, 1))
+    for a in range(0, len(queries), rows):
+        q = queries[a:a + rows]
+        m = len(q)
+        d2 = np.subtract(q[:, 0, None], px[None, :])
+        d2 *= d2
+        dy = np.subtract(q[:, 1, None], py[None, :])
+        dy *= dy
+        d2 += dy
+        # each query's kk-th smallest squared distance (partitioning values is several times
+        # cheaper than partitioning indices); the points no farther than it (ties at it
+        # included) in a narrow block, sorted by distance, then index: the first kk of each
+        kth = np.partition(d2, kk - 1, axis=1)[:, kk - 1]
+        flat = np.flatnonzero(d2 <= kth[:, None])
+        r, c = np.divmod(flat, n)                      # see `_nonzero_2d`
+        per = np.bincount(r, minlength=m)
+        rank = np.arange(len(flat)) - np.repeat(np.cumsum(per) - per, per)
+        dd = np.full((m, int(per.max())), np.inf)
+        jj = np.full(dd.shape, n, dtype=np.int64)
+        dd[r, rank], jj[r, rank] = d2.ravel()[flat], c
+        o = np.lexsort((jj, dd), axis=1)[:, :kk]
+        dist[a:a + m] = np.sqrt(np.take_along_axis(dd, o, axis=1))
+        near[a:a + m] = np.take_along_axis(jj, o, axis=1)
     return dist, near
 
 
@@ -443,8 +459,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
     lists = (_endpoint_lists(geo.A, geo.B, geo.closed, NEIGHBOURS)
              if len(geo.ring_stroke) == 0 and S >= 2 else None)
     *greedy, lists = _nearest_neighbour(geo, lists)
-    given_cost = _cycle_cost(geo, cost_fn, *given)
-    greedy_cost = _cycle_cost(geo, cost_fn, *greedy)
+    given_cost, greedy_cost = _cycle_costs(geo, cost_fn, given, greedy)
     start = greedy if greedy_cost <= given_cost else given
     best, best_cost = start, min(greedy_cost, given_cost)
     if S >= 2:
@@ -455,7 +470,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         found_cost = _cycle_cost(geo, cost_fn, *found)
         if found_cost < best_cost:
             best, best_cost = found, found_cost
-    return _make_tour(geo, cost_fn, *best, first_fixed=first_fixed)
+    return _make_tour(geo, cost_fn, *best, first_fixed=first_fixed, cost=best_cost)
 
 
 def merge_strokes(points, offsets, intensity, tol):
@@ -614,18 +629,31 @@ class _Geometry:
         return A, B
 
 
-def _cycle_cost(geo: _Geometry, cost_fn, seq, flip, rot) -> float:
-    """Total jump cost of the closed tour (flip: per position; rot: per stroke)."""
+def _jump_lengths(geo: _Geometry, seq, flip, rot) -> np.ndarray:
+    """The length of each jump of the closed tour, from position k to k + 1 (flip: per
+    position; rot: per stroke)."""
     A, B = geo.at_rotation(rot)
     inp = np.where(flip[:, None], B[seq], A[seq])
     out = np.where(flip[:, None], A[seq], B[seq])
-    d = np.sqrt(((out - np.roll(inp, -1, axis=0)) ** 2).sum(axis=1))
-    return float(np.sum(d if cost_fn is None else cost_fn(d)))
+    return np.sqrt(((out - np.roll(inp, -1, axis=0)) ** 2).sum(axis=1))
 
 
-def _make_tour(geo: _Geometry, cost_fn, seq, flip, rot, first_fixed=True) -> Tour:
+def _cycle_costs(geo: _Geometry, cost_fn, *tours) -> list:
+    """Total jump cost of each closed tour (seq, flip, rot), the jump model asked once."""
+    d = np.concatenate([_jump_lengths(geo, *t) for t in tours])
+    c = d if cost_fn is None else cost_fn(d)
+    return [float(np.sum(part)) for part in np.split(c, len(tours))]
+
+
+def _cycle_cost(geo: _Geometry, cost_fn, seq, flip, rot) -> float:
+    """Total jump cost of the closed tour (flip: per position; rot: per stroke)."""
+    return _cycle_costs(geo, cost_fn, (seq, flip, rot))[0]
+
+
+def _make_tour(geo: _Geometry, cost_fn, seq, flip, rot, first_fixed=True, cost=None) -> Tour:
     """The Tour of a closed tour (seq, flip per position, rot per stroke): stroke 0 first and
-    forwards (the mirror image of a tour costs the same), or cut after the costliest jump."""
+    forwards (the mirror image of a tour costs the same), or cut after the costliest jump.
+    `cost`: the closed tour's cost if known (the same jumps, whichever comes first)."""
     seq = np.asarray(seq, dtype=np.int64)
     flip = np.asarray(flip, dtype=bool) & ~geo.closed[seq]
     S = len(seq)
@@ -637,16 +665,15 @@ def _make_tour(geo: _Geometry, cost_fn, seq, flip, rot, first_fixed=True) -> Tou
         else:
             seq, flip = np.roll(seq, -k), np.roll(flip, -k)
     else:
-        A, B = geo.at_rotation(rot)
-        inp = np.where(flip[:, None], B[seq], A[seq])
-        out = np.where(flip[:, None], A[seq], B[seq])
-        d = np.sqrt(((out - np.roll(inp, -1, axis=0)) ** 2).sum(axis=1))
+        d = _jump_lengths(geo, seq, flip, rot)
         k = int(np.argmax(d if cost_fn is None else cost_fn(d)))
         seq, flip = np.roll(seq, -(k + 1)), np.roll(flip, -(k + 1))
     rotate = np.asarray(rot, dtype=np.int64)[seq]
     for a in (seq, flip, rotate):
         a.setflags(write=False)
-    return Tour(seq, flip, rotate, _cycle_cost(geo, cost_fn, seq, flip, rot))
+    if cost is None:
+        cost = _cycle_cost(geo, cost_fn, seq, flip, rot)
+    return Tour(seq, flip, rotate, cost)
 
 
 # --- phase 1: nearest neighbour -----------------------------------------------------------------
@@ -1034,14 +1061,15 @@ class _Search:
     def _two_opt(self, act):
         """2-opt moves from the active positions, by exit-to-exit neighbours (new jump
         out_i -> out_j) and entry-to-entry ones (new jump in_k -> in_m). Returns the removed
-        jumps e1, e2 (positions) and the change in cost."""
+        jumps e1, e2 (positions) and the change in cost as (the new jumps' lengths, the
+        removed jumps' costs): (C(a) + C(b)) - r1 - r2 (see `_deltas`)."""
         S = self.S
         e1s, e2s = [], []
         for use_exit in (True, False):
             a = self.out_id[act] if use_exit else self.in_id[act]
             own = act if use_exit else (act - 1) % S
             c = self.nb[a]
-            r, col = np.nonzero((c >= 0) & (self.nc[a] < self.J[own][:, None]))
+            r, col = _nonzero_2d((c >= 0) & (self.nc[a] < self.J[own][:, None]))
             c = c[r, col]
             is_in, is_out = self._role(c)
             other = self.pos[c >> 1]
@@ -1055,14 +1083,13 @@ class _Search:
         e1, e2 = np.concatenate(e1s), np.concatenate(e2s)
         ix, iy, ox, oy, J = self.ix, self.iy, self.ox, self.oy, self.J
         n1, n2 = (e1 + 1) % S, (e2 + 1) % S
-        delta = (self.C(np.hypot(ox[e1] - ox[e2], oy[e1] - oy[e2]))
-                 + self.C(np.hypot(ix[n1] - ix[n2], iy[n1] - iy[n2])) - J[e1] - J[e2])
-        return e1, e2, delta
+        return e1, e2, (np.hypot(ox[e1] - ox[e2], oy[e1] - oy[e2]),
+                        np.hypot(ix[n1] - ix[n2], iy[n1] - iy[n2]), J[e1], J[e2])
 
     def _or_opt(self, act):
         """Or-opt moves of runs of 1 .. MAX_SEGMENT strokes s .. e (an end at an active
         position) to between p and p + 1, forwards or reversed (rev). Returns s, e, p, rev and
-        the change in cost."""
+        the change in cost as `_two_opt` does."""
         S = self.S
         ix, iy, ox, oy, J = self.ix, self.iy, self.ox, self.oy, self.J
         starts, lengths = [], []
@@ -1085,7 +1112,7 @@ class _Search:
         from_entry = np.arange(2 * len(s)) < len(s)
         g2 = np.concatenate([gain, gain])
         c = self.nb[a]
-        r, col = np.nonzero((c >= 0) & (self.nc[a] < g2[:, None]))
+        r, col = _nonzero_2d((c >= 0) & (self.nc[a] < g2[:, None]))
         c = c[r, col]
         is_in, is_out = self._role(c)
         q = self.pos[c >> 1]
@@ -1103,9 +1130,19 @@ class _Search:
         # forwards: out_p -> in_s and out_e -> in_(p+1); reversed: out_p -> out_e, in_s -> in_(p+1)
         hx, hy = np.where(rev, ox[ee], ix[ss]), np.where(rev, oy[ee], iy[ss])
         tx, ty = np.where(rev, ix[ss], ox[ee]), np.where(rev, iy[ss], oy[ee])
-        delta = (self.C(np.hypot(ox[p] - hx, oy[p] - hy))
-                 + self.C(np.hypot(tx - ix[p1], ty - iy[p1])) - J[p] - g)
-        return ss, ee, p, rev, delta
+        return ss, ee, p, rev, (np.hypot(ox[p] - hx, oy[p] - hy),
+                                np.hypot(tx - ix[p1], ty - iy[p1]), J[p], g)
+
+    def _deltas(self, *moves):
+        """The change in cost of each kind of move, (C(a) + C(b)) - r1 - r2 from the
+        (a, b, r1, r2) of each, with one call of the jump model for all."""
+        n = [len(m[0]) for m in moves]
+        c = self.C(np.concatenate([x for m in moves for x in m[:2]]))
+        out, at = [], 0
+        for m, k in zip(moves, n):
+            out.append((c[at:at + k] + c[at + k:at + 2 * k]) - m[2] - m[3])
+            at += 2 * k
+        return out
 
     # one round -------------------------------------------------------------------------------
 
@@ -1116,17 +1153,19 @@ class _Search:
         S = self.S
         tol = 1e-9 * float(np.mean(np.abs(self.J))) + 1e-300
         inn, out = self.in_id, self.out_id
-        e1, e2, d2 = self._two_opt(act)
-        k = d2 < -tol
-        e1, e2, d2 = e1[k], e2[k], d2[k]
-        n1, n2 = (e1 + 1) % S, (e2 + 1) % S
+        e1, e2, m2 = self._two_opt(act)
         if S >= 4:
-            s, e, p, rev, d3 = self._or_opt(act)
+            s, e, p, rev, m3 = self._or_opt(act)
+            d2, d3 = self._deltas(m2, m3)
             k = d3 < -tol
             s, e, p, rev, d3 = s[k], e[k], p[k], rev[k], d3[k]
         else:
+            (d2,) = self._deltas(m2)
             s = e = p = np.zeros(0, np.int64)
             rev, d3 = np.zeros(0, bool), np.zeros(0)
+        k = d2 < -tol
+        e1, e2, d2 = e1[k], e2[k], d2[k]
+        n1, n2 = (e1 + 1) % S, (e2 + 1) % S
         d = np.concatenate([d2, d3])
         kind = np.concatenate([np.zeros(len(d2), np.int8), np.ones(len(d3), np.int8)])
         ends = np.concatenate([
@@ -1307,6 +1346,12 @@ class _Search:
             changed = True
             self._layout()
         return changed
+
+
+def _nonzero_2d(mask: np.ndarray):
+    """np.nonzero of a 2-D mask (row, column of each True, row by row), through the flat
+    index: numpy's 1-D search is many times faster than its 2-D one."""
+    return np.divmod(np.flatnonzero(mask), mask.shape[1])
 
 
 def _arc(lo: int, n: int, S: int) -> np.ndarray:
