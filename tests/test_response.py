@@ -154,6 +154,28 @@ def test_stage_gain_and_peak_boost_match_the_rc_low_pass_by_hand():
     assert stage.report()["peak_boost_hz"] == pytest.approx(48000.0)
 
 
+def test_compensation_of_frames_of_changing_length_follows_the_lag_formula_each_time():
+    # By hand: for u = a cos(w t), v = u + tau du/dt = a (cos(w t) - w tau sin(w t)). Frames of
+    # different lengths one after another (a replayed frame reuses what it can: each must still
+    # be divided at its own harmonics), alone and merged with an AC coupling of 0 Hz (passes all)
+    from vectorgen.interface import ACCoupling
+    from vectorgen.stages import StageChain
+
+    tau = 250e-6
+    alone = LagCompensation(Response(tau_s=(tau, tau)))
+    merged = StageChain([ACCoupling(0.0), LagCompensation(Response(tau_s=(tau, tau)))])
+    for n, cycles in ((96, 1), (120, 2), (96, 3), (96, 1), (500, 7)):
+        ph = 2 * np.pi * cycles * np.arange(n) / n
+        u = 0.4 * np.column_stack([np.cos(ph), np.cos(ph)])
+        w = 2 * np.pi * cycles * RATE / n
+        want = 0.4 * (np.cos(ph) - w * tau * np.sin(ph))
+        for out in (alone.frame(u, RATE), merged.frame(u, RATE)):
+            assert np.allclose(out[:, 0], want, atol=1e-12), n
+            assert np.allclose(out[:, 1], want, atol=1e-12), n
+    # the report is of the frame last divided (500 samples: top harmonic 250 * RATE / 500)
+    assert alone.report()["peak_boost_hz"] == pytest.approx(RATE / 2)
+
+
 # --- step responses and settle times -------------------------------------------------------------
 
 @pytest.mark.parametrize("model, tf", [

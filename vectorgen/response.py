@@ -417,11 +417,11 @@ class LagCompensation(LinearStage):
         self._top_hz = 0.0
 
     def response(self, f_hz):
-        f_hz = np.asarray(f_hz, dtype=float)
-        if f_hz.size:
-            # Kept only for the report: the boost is worst at the top harmonic of the frame.
-            self._top_hz = float(f_hz.max())
-        return self.model.gain(f_hz)
+        return self.model.gain(np.asarray(f_hz, dtype=float))
+
+    def saw(self, n, rate):
+        # kept only for the report: the boost is worst at the frame's top harmonic
+        self._top_hz = (n // 2) * rate / n if n > 0 else 0.0
 
     def report(self) -> dict:
         """The response and the peak boost |1 / H| over the frequencies last compensated (the

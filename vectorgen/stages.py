@@ -87,10 +87,34 @@ def periodic_apply(x: np.ndarray, rate: int, response) -> np.ndarray:
     >>> bool(np.allclose(y, 0.5 * x))
     True
     """
-    n = len(x)
+    return _times_spectrum(x, response(np.fft.rfftfreq(len(x), 1.0 / rate)))
+
+
+def _times_spectrum(x: np.ndarray, gain: np.ndarray) -> np.ndarray:
+    """The looping frame x ((n, 2)) with its harmonics multiplied by `gain` ((n // 2 + 1, 2))."""
     spec = np.fft.rfft(x, axis=0)
-    spec *= response(np.fft.rfftfreq(n, 1.0 / rate))
-    return np.fft.irfft(spec, n=n, axis=0)
+    spec *= gain
+    return np.fft.irfft(spec, n=len(x), axis=0)
+
+
+class _LastInverse:
+    """1 / H at the harmonics of a looping frame of n samples at `rate`, for the last (n, rate)
+    asked: a replayed or fixed-length frame is divided by the same array again. (The stages
+    are not changed once made, so H is a function of n and rate alone.)"""
+
+    def __init__(self, response):
+        self.response = response            # response(f_hz) -> (m, 2) complex
+        self.key = None
+        self.value = None
+
+    def __call__(self, n: int, rate: int) -> np.ndarray:
+        key = (int(n), int(rate))
+        found = self.value
+        if self.key != key or found is None:
+            found = _safe_inverse(self.response(np.fft.rfftfreq(n, 1.0 / rate)))
+            found.flags.writeable = False
+            self.key, self.value = key, found
+        return found
 
 
 FAST_PRIMES = (2, 3, 5, 7, 11)
@@ -130,8 +154,16 @@ class LinearStage(Stage):
         """(m, 2) complex gain of the hardware at the frequencies `f_hz` (m,)."""
         return np.ones((len(f_hz), 2), dtype=complex)
 
+    def saw(self, n: int, rate: int) -> None:
+        """Told of each looping frame (n samples at `rate`) this stage divides, alone or merged
+        with others (for its report)."""
+
     def frame(self, drive, rate):
-        return periodic_apply(drive, rate, lambda f: _safe_inverse(self.response(f)))
+        self.saw(len(drive), rate)
+        inverse = self.__dict__.get("_inverse")
+        if inverse is None:
+            inverse = self._inverse = _LastInverse(self.response)
+        return _times_spectrum(drive, inverse(len(drive), rate))
 
     def hardware(self, drive, rate):
         return periodic_apply(drive, rate, self.response)
@@ -196,6 +228,7 @@ class StageChain:
 
     def __init__(self, stages=()):
         self.stages = list(stages)
+        self._inverses: dict = {}           # merged linear groups' `_LastInverse`s
 
     def __bool__(self) -> bool:
         return bool(self.stages)
@@ -213,8 +246,16 @@ class StageChain:
         their responses (one FFT, and one rounding, for the whole linear part)."""
         for group in self._groups():
             if len(group) > 1:
-                drive = periodic_apply(drive, rate, lambda f, g=group: _safe_inverse(
-                    _product(g, f)))
+                # (keyed by the stages themselves, which the entry keeps alive: their ids
+                # cannot be reused while it is there)
+                key = tuple(id(st) for st in group)
+                inverse = self._inverses.get(key)
+                if inverse is None:
+                    inverse = self._inverses[key] = _LastInverse(
+                        lambda f, g=tuple(group): _product(g, f))
+                for st in group:
+                    st.saw(len(drive), rate)
+                drive = _times_spectrum(drive, inverse(len(drive), rate))
             else:
                 drive = group[0].frame(drive, rate)
         return drive
