@@ -1199,8 +1199,10 @@ class _Search:
         self.active[self.seq[act]] = False
         if len(delta) == 0:
             return False
-        active, S2 = self.active, 2 * S
-        slot = memoryview(self.slot)
+        S2 = 2 * S
+        # element access through memoryviews of the arrays (which the moves rewrite in place):
+        # no numpy scalar or index array per access
+        slot, active, seq = memoryview(self.slot), memoryview(self.active), memoryview(self.seq)
 
         def where(u, v):
             """q + 1 if the jump runs q -> q + 1 from u to v, -(q + 1) if from v to u, 0 if
@@ -1219,7 +1221,7 @@ class _Search:
                 break
             w1, w2 = where(a1, b1), where(a2, b2)
             if w1 == 0 or w2 == 0 or (w1 > 0) != (w2 > 0):
-                active[[a1 >> 1, b1 >> 1, a2 >> 1, b2 >> 1]] = True
+                active[a1 >> 1] = active[b1 >> 1] = active[a2 >> 1] = active[b2 >> 1] = True
                 continue
             if mk == 0:
                 new_jumps = self._reverse(abs(w1) - 1, abs(w2) - 1)
@@ -1229,11 +1231,10 @@ class _Search:
                 s, e = (q0 + 1, q1) if w1 > 0 else (q1 + 1, q0)
                 s, L = s % S, (e - s) % S + 1
                 if w3 == 0 or (p - s + 1) % S <= L:
-                    active[[a1 >> 1, b1 >> 1, a3 >> 1, b3 >> 1]] = True
+                    active[a1 >> 1] = active[b1 >> 1] = active[a3 >> 1] = active[b3 >> 1] = True
                     continue
                 new_jumps = self._move_run(s, L, p, mrev ^ (w1 < 0) ^ (w3 < 0))
             applied += 1
-            seq = self.seq
             for k in new_jumps:
                 active[seq[k % S]] = True
                 active[seq[(k + 1) % S]] = True
