@@ -84,14 +84,14 @@ _TP_BAND = None
 
 def _tp_band() -> np.ndarray:
     """(3 TP_TAPS - 1, 3 TP_TAPS) weights: a window of 35 samples times this gives the three
-    in-between points of each of the block's 12 gaps (column 3 o + p: gap o, phase p)."""
+    in-between points of each of the block's 12 gaps (column p B + o: phase p, gap o)."""
     global _TP_BAND
     if _TP_BAND is None:
         h = _tp_phases()
         B = TP_TAPS
         band = np.zeros((B + 2 * TP_TAPS - 1, 3 * B))
         for o in range(B):
-            band[o:o + 2 * TP_TAPS, 3 * o:3 * o + 3] = h
+            band[o:o + 2 * TP_TAPS, o::B] = h
         _TP_BAND = band
     return _TP_BAND
 
@@ -115,16 +115,17 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
         return (float(np.abs(drive).max()) if drive.size else 0.0), 0, 0
     h = _tp_phases()
     h1 = float(np.abs(h).sum(axis=0).max())
-    if halo is None:
-        ext = np.concatenate([drive[-TP_TAPS:], drive, drive[:TP_TAPS]]) if n >= TP_TAPS else \
-            np.concatenate([np.tile(drive, (TP_TAPS // n + 1, 1))[-TP_TAPS:], drive,
-                            np.tile(drive, (TP_TAPS // n + 1, 1))[:TP_TAPS]])
-    else:
-        ext = np.concatenate([halo[0], drive, halo[1]])
     B = TP_TAPS
-    L = len(ext)
-    # room after the last gap's taps for a whole block's window (zeros, never a gap's tap)
-    ext = np.concatenate([ext, np.zeros((B, ext.shape[1]))])
+    if halo is None:
+        if n >= TP_TAPS:
+            halo = (drive[-TP_TAPS:], drive[:TP_TAPS])
+        else:
+            rep = np.tile(drive, (TP_TAPS // n + 1, 1))
+            halo = (rep[-TP_TAPS:], rep[:TP_TAPS])
+    # the chunk with its halo, and room after the last gap's taps for a whole block's window
+    # (zeros, never a gap's tap)
+    ext = np.concatenate([halo[0], drive, halo[1], np.zeros((B, drive.shape[1]))])
+    L = n + 2 * TP_TAPS
     starts = np.arange(0, L, B)
     hb = _tp_band()
     best, at, axis = float(max(drive.max(), -drive.min())), 0, 0
@@ -151,7 +152,9 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
         windows = sliding_window_view(col, B + 2 * TP_TAPS - 1)
         for f0 in range(0, len(flagged), TP_BLOCKS_PER_PASS):
             f = flagged[f0:f0 + TP_BLOCKS_PER_PASS]
-            v = np.abs(windows[f * B + 1 - TP_TAPS] @ hb).reshape(len(f), B, 3).max(axis=2)
+            v = windows[f * B + 1 - TP_TAPS] @ hb          # (blocks, 3 phases x B gaps)
+            np.abs(v, out=v)
+            v = np.maximum(np.maximum(v[:, :B], v[:, B:2 * B]), v[:, 2 * B:])
             row = f[:, None] * B + np.arange(B)
             v[(row < TP_TAPS) | (row >= TP_TAPS + n)] = 0.0
             j = int(np.argmax(v))
