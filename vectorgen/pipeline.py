@@ -364,7 +364,8 @@ class Renderer:
             u = np.abs(model.drive_from_xy(px, py))
             moving = lag * (np.asarray(speed)[:, None] * rate / mm_per_fs)   # FS, lag term
             room = np.maximum(ACCEL_DRIVE_TOP - u - moving, ACCEL_DRIVE_FLOOR)
-            return (room * wn2).min(axis=1) * mm_per_fs / float(rate) ** 2
+            room *= wn2
+            return np.minimum(room[:, 0], room[:, 1]) * mm_per_fs / float(rate) ** 2
         return accel
 
     def _speed_cap(self, rate: int):
