@@ -316,19 +316,28 @@ def _densified(px, py, offs, most_mm: float):
     seg = np.hypot(np.diff(px), np.diff(py))
     gap = np.zeros(P - 1, dtype=bool)
     gap[offs[1:-1] - 1] = True
-    parts = np.where(gap, 1, np.maximum(1, np.ceil(seg / most_mm))).astype(np.int64)
-    if (parts == 1).all():
+    long = np.flatnonzero(~gap & (seg > most_mm))
+    if len(long) == 0:
         return px, py, offs
-    # vertex i is followed by parts[i] - 1 new ones
-    count = np.concatenate([parts, [1]])
-    start = np.repeat(np.arange(P), count)
-    k = np.arange(int(count.sum())) - np.repeat(np.cumsum(count) - count, count)
-    frac = k / np.repeat(count, count)
-    nxt = np.minimum(start + 1, P - 1)
-    nx = px[start] + (px[nxt] - px[start]) * frac
-    ny = py[start] + (py[nxt] - py[start]) * frac
-    new_index = np.cumsum(count) - count            # where each old vertex now is
-    return nx, ny, np.concatenate([new_index[offs[:-1]], [len(nx)]]).astype(np.int64)
+    # vertex i (a long segment's first) is followed by extra = parts - 1 new ones, evenly
+    # along its segment; the work is over the vertices once and over the new ones
+    parts = np.maximum(np.ceil(seg[long] / most_mm).astype(np.int64), 1)
+    extra = parts - 1
+    shift = np.zeros(P, dtype=np.int64)
+    shift[long + 1] = np.cumsum(extra)                  # new vertices before vertex i
+    np.maximum.accumulate(shift, out=shift)
+    new_index = np.arange(P) + shift                    # where each old vertex now is
+    total = P + int(extra.sum())
+    nx, ny = np.empty(total), np.empty(total)
+    nx[new_index], ny[new_index] = px, py
+    seg_of = np.repeat(np.arange(len(long)), extra)
+    k = np.arange(len(seg_of)) - np.repeat(np.cumsum(extra) - extra, extra) + 1
+    frac = k / parts[seg_of]
+    a = long[seg_of]
+    at = new_index[a] + k
+    nx[at] = px[a] + (px[a + 1] - px[a]) * frac
+    ny[at] = py[a] + (py[a + 1] - py[a]) * frac
+    return nx, ny, np.concatenate([new_index[offs[:-1]], [total]]).astype(np.int64)
 
 
 def _reordered_offsets(offsets: np.ndarray, order: np.ndarray) -> np.ndarray:
