@@ -1271,6 +1271,29 @@ class _Search:
         S = self.S
         e = (s + L - 1) % S
         n_a, n_b = (p - s) % S + 1, (e - p) % S
+        seq, slot = self.seq, self.slot
+        # without wrapping round: the others shift along by L (their slots by 2 L, the flip
+        # bit kept), the run goes in after them (s .. p) or before them (p + 1 .. e)
+        if n_a <= n_b and s + n_a <= S:
+            m = n_a - L
+            run = seq[s:s + L].copy()
+            slot[seq[s + L:s + n_a]] -= 2 * L
+            seq[s:s + m] = seq[s + L:s + n_a]
+            at = s + m
+        elif n_a > n_b and p + 1 + n_b <= S:
+            m, q0 = n_b - L, p + 1
+            run = seq[q0 + m:q0 + n_b].copy()
+            slot[seq[q0:q0 + m]] += 2 * L
+            seq[q0 + L:q0 + n_b] = seq[q0:q0 + m]
+            at = q0
+        else:
+            at = None
+        if at is not None:
+            if rev:
+                run = run[::-1]
+            seq[at:at + L] = run
+            slot[run] = 2 * np.arange(at, at + L) + ((slot[run] & 1) ^ int(rev))
+            return (s - 1, s + m - 1, s + n_a - 1) if n_a <= n_b else (p, p + L, p + n_b)
         if n_a <= n_b:                                      # positions s .. p: others, run
             idx = _arc(s, n_a, S)
             run, rest = idx[:L], idx[L:]
@@ -1283,7 +1306,6 @@ class _Search:
             src = np.concatenate([run[::-1] if rev else run, rest])
             new_jumps = (p, p + L, p + n_b)
             run_at = slice(0, L)
-        seq = self.seq
         moved = seq[src]
         seq[idx] = moved
         f = self.slot[moved] & 1
