@@ -95,11 +95,10 @@ def stage_times(svg: str):
     Renderer.frame make). Returns (times dict, the Frame, the strokes, the Renderer)."""
     import warnings
 
-    from vectorgen.beamplan import plan_frame
+    from vectorgen.beamplan import check_frame_size, order_frame
     from vectorgen.clip import clip_parts
-    from vectorgen.correction import plan_signal
     from vectorgen.profile import Profile
-    from vectorgen.pipeline import Renderer, Settings
+    from vectorgen.pipeline import Renderer, Settings, merged
     from vectorgen.strokes import check_finite
     from vectorgen.svgdoc import read_document
     from vectorgen.svgsource import svg_to_strokes
@@ -120,15 +119,25 @@ def stage_times(svg: str):
     # svg_to_strokes parses again, then flattens: its time less the parse alone is the rest
     # (worked out from the best of each, in main)
     t["svg rest"] = t_source
+    # the steps of Renderer.frame, in its order and with its arguments
     t0 = time.perf_counter()
     check_finite(strokes)
     clipped, n_cut = clip_parts(strokes, prof.screen)
     t["clip"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    plan = plan_frame(clipped, renderer.timing, renderer.target, "greedy")
+    clipped = merged(clipped, prof.beam.chord_tolerance_mm)
+    check_frame_size(clipped, renderer.timing, renderer.target)
+    t["merge"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    ordered = order_frame(clipped, renderer.settings.ordering, renderer.jumps)
+    t["order"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    plan = renderer._plan(clipped, renderer.timing, ordered)
     t["plan"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    plan_signal(plan, renderer.model, renderer.chain, renderer.cmap, RATE)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        renderer._signal(plan, [], {})
     t["channels"] = time.perf_counter() - t0
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -140,8 +149,10 @@ STAGE_NAMES = {
     "parse": "read and resolve the document (XML, CSS, use, units, path data)",
     "svg rest": "rest of svg_to_strokes (checks, bounds, placement, flattening)",
     "clip": "check_finite + clip_parts (clip_to_screen before packing)",
-    "plan": "plan_frame (stroke order, arc lengths, corners, sample blocks, jumps)",
-    "channels": "plan_signal (sample positions, correction, stages, channel mapping)",
+    "merge": "merged + check_frame_size (strokes whose ends meet joined; the size limits)",
+    "order": "order_frame (the tour: nearest neighbour, 2-opt and Or-opt rounds)",
+    "plan": "plan_frame (arc lengths, corners, sample blocks, shaped jumps)",
+    "channels": "plan_signal (sample positions, correction, stages, true peak, channels)",
 }
 
 
