@@ -82,6 +82,31 @@ class StraightJumps:
         return a + (np.repeat(jump_to, move, axis=0) - a) * frac
 
 
+def _reach(errors: np.ndarray, tol: float) -> np.ndarray | None:
+    """reach[i]: the longest jump (mm, a float) with jump * errors[i] <= tol, worked out
+    exactly in floating point (the product is monotone in the jump), so that `length <=
+    reach[i]` is that test itself; None unless the errors fall with the move length (reach
+    then grows, and one binary search finds the shortest move)."""
+    e = np.asarray(errors, dtype=float)
+    if not (len(e) and np.all(e > 0) and np.all(np.isfinite(e)) and np.all(np.diff(e) <= 0)):
+        return None
+    r = tol / e
+    for _ in range(64):
+        over = r * e > tol
+        if not over.any():
+            break
+        r[over] = np.nextafter(r[over], 0.0)
+    for _ in range(64):
+        up = np.nextafter(r, np.inf)
+        more = up * e <= tol
+        if not more.any():
+            break
+        r[more] = up[more]
+    if np.any(r * e > tol) or np.any(np.nextafter(r, np.inf) * e <= tol):
+        return None
+    return r
+
+
 class ShapedJumps(StraightJumps):
     """Band-limited blanked moves: the shortest shaped move whose ringing through the
     interface's low-pass stays within `tol_mm`, at least as long as the jump speed allows.
@@ -103,12 +128,17 @@ class ShapedJumps(StraightJumps):
         self._flat = np.concatenate(shapes)
         self._base = np.concatenate([[0], np.cumsum([len(s) for s in shapes])])
         self._most = MAX_MOVE_SAMPLES
+        self._reach = _reach(self._errors, self.tol_mm)
 
     def move_samples(self, length_mm):
         length_mm = np.asarray(length_mm, dtype=float)
-        # the shortest m with length * error(m) <= tol (errors fall with m)
-        ok = length_mm[..., None] * self._errors <= self.tol_mm
-        m = np.where(ok.any(axis=-1), ok.argmax(axis=-1) + 1, self._most)
+        # the shortest m with length * error(m) <= tol
+        if self._reach is not None:
+            m = np.minimum(np.searchsorted(self._reach, length_mm, side="left") + 1,
+                           self._most)
+        else:
+            ok = length_mm[..., None] * self._errors <= self.tol_mm
+            m = np.where(ok.any(axis=-1), ok.argmax(axis=-1) + 1, self._most)
         slew = np.ceil(length_mm / self.step_mm) if np.isfinite(self.step_mm) else 0
         return np.where(length_mm > 0, np.maximum(m, slew), 0).astype(np.int64)
 
