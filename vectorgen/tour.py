@@ -15,8 +15,10 @@ segments never change: only the order, the direction and the starting vertex of 
 `plan_tour` works in three phases:
 
 1. nearest neighbour (`greedy_tour`): from stroke 0, always jump to the nearest entry point of a
-   stroke not yet drawn; the nearest candidates of every point come from one KD-tree query
-   (`scipy.spatial.cKDTree`), and a point whose list is used up looks in a grid of the rest;
+   stroke not yet drawn; the nearest candidates of every point come from one nearest-points
+   query (a distance matrix, a uniform grid or, for the largest sets, `scipy.spatial.cKDTree`),
+   and a point whose list is used up measures the rest (or searches a grid of them, when many
+   are left);
 2. local search in rounds: each round evaluates, as whole arrays, the 2-opt moves (reverse a run
    of strokes, flipping each) and the Or-opt moves (move a run of 1 to 3 strokes elsewhere,
    either way round) that the `NEIGHBOURS` nearest endpoints of each endpoint suggest, around
@@ -458,7 +460,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         raise InputError(f"min_gain must be >= 0 (min_gain={min_gain})", parameter="min_gain")
     S = geo.S
     given = (np.arange(S), np.zeros(S, dtype=bool), np.zeros(S, dtype=np.int64))
-    # one KD-tree query serves both phases
+    # one nearest-points query serves both phases
     lists = (_endpoint_lists(geo.A, geo.B, geo.closed, NEIGHBOURS)
              if len(geo.ring_stroke) == 0 and S >= 2 else None)
     *greedy, lists = _nearest_neighbour(geo, lists)
@@ -688,7 +690,7 @@ def _workers(n: int) -> int:
 
 
 def _endpoint_lists(A, B, closed, k):
-    """Each endpoint's k nearest endpoints of other strokes, by one KD-tree query.
+    """Each endpoint's k nearest endpoints of other strokes, by one `_knn` query.
 
     Endpoint ids: 2 t = stroke t's point A (its first point, or a closed stroke's entry
     vertex), 2 t + 1 = its point B; a closed stroke has only 2 t (row 2 t + 1 repeats it).
@@ -793,7 +795,7 @@ def _nearest_neighbour(geo: _Geometry, lists=None):
     without multi-vertex closed strokes), shared with the local search; with such strokes the
     lists returned are made from this phase's query instead (see `_lists_from_candidates`).
 
-    Every candidate's nearest candidates come from one KD-tree query; the first one in the
+    Every candidate's nearest candidates come from one `_knn` query; the first one in the
     list whose stroke is not drawn yet is the nearest of all such. When a list is used up,
     `_Remaining` finds it."""
     S = geo.S
@@ -883,7 +885,7 @@ class _Remaining:
     window of cells round the query point, doubling it until it holds a live candidate, and
     widens it once more if the nearest one found is farther away than the window's edge; so
     the answer is exact. Fewer candidates are simply all measured (a few dozen numpy calls on
-    a window cost more than one pass over a few thousand points); equal distances then go to
+    a window, and rebuilding the grid, cost more than one pass over ten thousand points); equal distances then go to
     the lowest candidate id. Once the dead are more than half of what was built, it is rebuilt
     from the live candidates only."""
 

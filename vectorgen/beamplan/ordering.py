@@ -13,7 +13,7 @@ optionally, the vertex each closed stroke starts from ((S,) int, by drawing posi
 Strategies are found by name in `ORDERINGS`; a new one is one function plus one
 `register_ordering` line.
 
-* ``"tour"`` (the default): nearest neighbour from a KD-tree, then 2-opt and Or-opt moves with
+* ``"tour"`` (the default): nearest neighbour, then 2-opt and Or-opt moves with
   free direction and free entry vertex of closed strokes, minimising the jumps' time
   (`vectorgen.tour`), at most `TOUR_ROUNDS` rounds and none after one that gained less than
   `TOUR_MIN_GAIN` of the cost, so that the same drawing always gives the same frame;
