@@ -18,7 +18,7 @@ from .beamplan import (ORDERINGS, LagJumps, Plan, ShapedJumps, Timing, check_fra
                        order_frame, plan_frame)
 from .channels import ChannelMap
 from .clip import clip_parts
-from .correction import check_full_scale, check_true_peak, plan_signal
+from .correction import CHUNK, check_full_scale, check_true_peak, plan_signal
 from .deflection import DeflectionModel
 from .errors import FullScaleError, InputError, VectorgenWarning
 from .stages import Stage, StageChain
@@ -387,7 +387,17 @@ class Renderer:
             # drive u + lag du/dt stays within the limit (LIT_DRIVE_LIMIT, or half-way from
             # |u| to full scale where a stroke lies further out already) while
             # room_a = limit - sign(du_a) u_a >= lag_a |du_a/dt|; a segment of norm mm whose
-            # drive changes by f_a may so be drawn at room_a norm / (lag_a |f_a|) mm/s
+            # drive changes by f_a may so be drawn at room_a norm / (lag_a |f_a|) mm/s.
+            # CHUNK segments at a time: the temporaries stay small (no fresh memory per op)
+            out = np.empty(max(len(px) - 1, 0))
+            for g0 in range(0, len(out), CHUNK):
+                g1 = min(len(out), g0 + CHUNK)
+                out[g0:g1] = chunk(px[g0:g1 + 1], py[g0:g1 + 1])
+            np.maximum(out, floor, out=out)
+            out /= rate
+            return out
+
+        def chunk(px, py):
             u = model.drive_from_xy(px, py)
             dx, dy = np.diff(px), np.diff(py)
             norm = np.sqrt(dx * dx + dy * dy)
@@ -396,18 +406,25 @@ class Renderer:
                 for a in (0, 1):
                     if not lag[a] > 0:
                         continue
-                    f = inv[a, 0] * dx + inv[a, 1] * dy
+                    f = inv[a, 0] * dx
+                    f += inv[a, 1] * dy
                     ua = u[:, a]
-                    limit = np.maximum(LIT_DRIVE_LIMIT, 0.5 + 0.5 * np.abs(ua))
+                    limit = np.abs(ua)
+                    limit *= 0.5
+                    limit += 0.5
+                    np.maximum(limit, LIT_DRIVE_LIMIT, out=limit)
                     sgn = np.sign(f)
-                    room = np.minimum(limit[:-1] - sgn * ua[:-1], limit[1:] - sgn * ua[1:])
+                    room = limit[:-1] - sgn * ua[:-1]
+                    np.minimum(room, limit[1:] - sgn * ua[1:], out=room)
                     np.maximum(room, 0.0, out=room)
                     room *= norm
-                    f = np.abs(f)
+                    np.abs(f, out=f)
                     f *= lag[a]
-                    np.minimum(mm_s, np.where(f > 0, room / f, np.inf), out=mm_s)
+                    room /= f                       # inf where f is 0 and room > 0
+                    room[f == 0] = np.inf
+                    np.minimum(mm_s, room, out=mm_s)
             mm_s[~(norm > 0)] = np.inf
-            return np.maximum(mm_s, floor) / rate
+            return mm_s
         return cap
 
     def frame(self, strokes: Strokes) -> Frame:
