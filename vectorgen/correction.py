@@ -279,7 +279,14 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
 
 def _whole(plan, model, chain, cmap, rate, true_peak=False, drive=None):
     if drive is None:
-        corrected = model.drive_from_xy(plan.x, plan.y)
+        if model.has_distortion:        # (every point takes the same Newton steps: at once)
+            corrected = model.drive_from_xy(plan.x, plan.y)
+        else:                           # a chunk at a time into the frame's drive
+            n = plan.samples
+            corrected = np.empty((n, 2))
+            for c0 in range(0, n, CHUNK):
+                c1 = min(n, c0 + CHUNK)
+                corrected[c0:c1] = model.drive_from_xy(*plan.positions(c0, c1))
         drive = check_full_scale(chain.frame(corrected, rate), plan,
                                  None if chain.pointwise else corrected)
     sig = np.empty((len(drive), cmap.channels), dtype=np.float32)

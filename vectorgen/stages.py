@@ -17,6 +17,8 @@ A new stage is one file with a `Stage` subclass and one `register_stage` line; s
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from .errors import ProfileError
@@ -90,11 +92,35 @@ def periodic_apply(x: np.ndarray, rate: int, response) -> np.ndarray:
     return _times_spectrum(x, response(np.fft.rfftfreq(len(x), 1.0 / rate)))
 
 
+_WORK = threading.local()       # per thread: reused column and spectrum buffers
+WORK_KEPT = 1 << 21             # the longest frame whose buffers are kept (about 64 MB)
+
+
 def _times_spectrum(x: np.ndarray, gain: np.ndarray) -> np.ndarray:
-    """The looping frame x ((n, 2)) with its harmonics multiplied by `gain` ((n // 2 + 1, 2))."""
-    spec = np.fft.rfft(x, axis=0)
-    spec *= gain
-    return np.fft.irfft(spec, n=len(x), axis=0)
+    """The looping frame x ((n, c)) with its harmonics multiplied by `gain` ((n // 2 + 1, c)).
+
+    A column at a time through buffers kept for the last frame length (a frame of 125,000
+    samples would otherwise take several megabytes of fresh memory, a page fault per 4 KiB):
+    only the result is new."""
+    n = len(x)
+    if x.ndim != 2 or n < 2:
+        spec = np.fft.rfft(x, axis=0)
+        spec *= gain
+        return np.fft.irfft(spec, n=n, axis=0)
+    work = getattr(_WORK, "bufs", None)
+    if work is None or len(work[0]) != n:
+        work = (np.empty(n), np.empty(n // 2 + 1, dtype=complex), np.empty(n))
+        # (kept for frames of up to WORK_KEPT samples: about 32 bytes a sample stay allocated)
+        _WORK.bufs = work if n <= WORK_KEPT else None
+    col, spec, back = work
+    out = np.empty(x.shape)
+    for k in range(x.shape[1]):
+        col[:] = x[:, k]
+        np.fft.rfft(col, out=spec)
+        spec *= gain[:, k]
+        np.fft.irfft(spec, n=n, out=back)
+        out[:, k] = back
+    return out
 
 
 class _LastInverse:
