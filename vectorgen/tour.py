@@ -1022,6 +1022,7 @@ class _Search:
         nc = np.full_like(nd, np.inf)
         nc[fin] = self.C(nd[fin])
         self.nb, self.nc = nb, nc
+        self.nc_least = nc.min(axis=1)         # rows whose least cost says no move: skipped
         self.rotated_since_lists = False
 
     def run(self, deadline: float, max_rounds: int | None = None, min_gain: float = 0.0) -> None:
@@ -1069,8 +1070,11 @@ class _Search:
         for use_exit in (True, False):
             a = self.out_id[act] if use_exit else self.in_id[act]
             own = act if use_exit else (act - 1) % S
+            lim = self.J[own]
+            near = self.nc_least[a] < lim
+            a, own, lim = a[near], own[near], lim[near]
             c = self.nb[a]
-            r, col = _nonzero_2d((c >= 0) & (self.nc[a] < self.J[own][:, None]))
+            r, col = _nonzero_2d((c >= 0) & (self.nc[a] < lim[:, None]))
             c = c[r, col]
             is_in, is_out = self._role(c)
             other = self.pos[c >> 1]
@@ -1112,9 +1116,11 @@ class _Search:
         a = np.concatenate([self.in_id[s], self.out_id[e]])
         from_entry = np.arange(2 * len(s)) < len(s)
         g2 = np.concatenate([gain, gain])
-        c = self.nb[a]
-        r, col = _nonzero_2d((c >= 0) & (self.nc[a] < g2[:, None]))
+        row = np.flatnonzero(self.nc_least[a] < g2)
+        c = self.nb[a[row]]
+        r, col = _nonzero_2d((c >= 0) & (self.nc[a[row]] < g2[row, None]))
         c = c[r, col]
+        r = row[r]
         is_in, is_out = self._role(c)
         q = self.pos[c >> 1]
         fe = from_entry[r]
