@@ -639,9 +639,11 @@ def _jump_lengths(geo: _Geometry, seq, flip, rot) -> np.ndarray:
     """The length of each jump of the closed tour, from position k to k + 1 (flip: per
     position; rot: per stroke)."""
     A, B = geo.at_rotation(rot)
-    inp = np.where(flip[:, None], B[seq], A[seq])
-    out = np.where(flip[:, None], A[seq], B[seq])
-    return np.sqrt(((out - np.roll(inp, -1, axis=0)) ** 2).sum(axis=1))
+    a, b, f = A[seq], B[seq], flip[:, None]
+    inp, out = np.where(f, b, a), np.where(f, a, b)
+    out[:-1] -= inp[1:]
+    out[-1] -= inp[0]
+    return np.sqrt((out ** 2).sum(axis=1))
 
 
 def _cycle_costs(geo: _Geometry, cost_fn, *tours) -> list:
@@ -986,6 +988,7 @@ class _Search:
                                                   & ~geo.closed[self.seq])
         self.closed = geo.closed
         self.A, self.B = geo.at_rotation(self.rot)
+        self.AB = np.hstack([self.A, self.B])
         self.rings = geo.ring_stroke[geo.ring_stroke != fixed_rotation]
         self.active = np.ones(S, dtype=bool)
         self.lists = lists
@@ -1005,14 +1008,16 @@ class _Search:
         self.pos = self.slot >> 1
         self.flip = self.slot & 1
         f = self.flip[s].astype(bool)
-        A, B = self.A, self.B
-        self.ix = np.where(f, B[s, 0], A[s, 0])
-        self.iy = np.where(f, B[s, 1], A[s, 1])
-        self.ox = np.where(f, A[s, 0], B[s, 0])
-        self.oy = np.where(f, A[s, 1], B[s, 1])
+        P = self.AB[s]                          # ax, ay, bx, by of the stroke at each position
+        self.ix = np.where(f, P[:, 2], P[:, 0])
+        self.iy = np.where(f, P[:, 3], P[:, 1])
+        self.ox = np.where(f, P[:, 0], P[:, 2])
+        self.oy = np.where(f, P[:, 1], P[:, 3])
         self.in_id = 2 * s + f
         self.out_id = 2 * s + 1 - f
-        self.J = self.C(np.hypot(self.ox - np.roll(self.ix, -1), self.oy - np.roll(self.iy, -1)))
+        nx, ny = np.empty_like(self.ix), np.empty_like(self.iy)
+        nx[:-1], nx[-1], ny[:-1], ny[-1] = self.ix[1:], self.ix[0], self.iy[1:], self.iy[0]
+        self.J = self.C(np.hypot(self.ox - nx, self.oy - ny))
 
     def _neighbour_lists(self):
         if self.lists is None or self.rotated_since_lists:
@@ -1367,6 +1372,7 @@ class _Search:
             xy = geo.ring_pts[first[better] + new_v]
             self.A[rr] = xy
             self.B[rr] = xy
+            self.AB[rr, :2] = self.AB[rr, 2:] = xy
             prr = self.pos[rr]
             self.active[self.seq[(prr - 1) % S]] = True
             self.active[rr] = True
