@@ -836,9 +836,9 @@ def _nearest_neighbour(geo: _Geometry, lists=None):
     exv = memoryview(np.ascontiguousarray(exit_id, dtype=np.int64))
     alive = bytearray(b"\x01") * S
     alive[0] = 0
-    far = _Remaining(np.column_stack([px, py])[pool], pool, stroke,
-                     np.frombuffer(alive, dtype=bool))
     picks = [start]
+    far = _Remaining(np.column_stack([px, py])[pool], pool, stroke,
+                     np.frombuffer(alive, dtype=bool), picks)
     cur = exv[start]
     for _ in range(S - 1):
         base = cur * k
@@ -888,13 +888,15 @@ class _Remaining:
     window of cells round the query point, doubling it until it holds a live candidate, and
     widens it once more if the nearest one found is farther away than the window's edge; so
     the answer is exact. Fewer candidates are simply all measured (a few dozen numpy calls on
-    a window, and rebuilding the grid, cost more than one pass over ten thousand points); equal distances then go to
-    the lowest candidate id. Once the dead are more than half of what was built, it is rebuilt
-    from the live candidates only."""
+    a window, and rebuilding the grid, cost more than one pass over ten thousand points):
+    the strokes the walk has drawn since the last search are moved to infinity first, and
+    equal distances go to the lowest candidate id. Once the dead are more than half of what
+    was built, it is rebuilt from the live candidates only."""
 
-    def __init__(self, xy, ids, stroke, live):
+    def __init__(self, xy, ids, stroke, live, picks=None):
         self.stroke = stroke
         self.live = live                      # (S,) bool, the walk's own: not drawn yet
+        self.picks = picks                    # the walk's candidates picked so far (a list)
         self.xy, self.ids = xy, ids
         self.grid = None                      # built when first needed
 
@@ -909,6 +911,14 @@ class _Remaining:
             self.grid = ()
             self.dx, self.dy = xy[:, 0].copy(), xy[:, 1].copy()
             self.dst = self.stroke[ids]
+            if self.picks is not None:
+                # where each stroke's candidates are (by stroke, in id order within it): a
+                # stroke drawn since is taken out by moving its candidates to infinity
+                self.by_stroke = (np.arange(n) if n < 2 or np.all(self.dst[1:] >= self.dst[:-1])
+                                  else np.argsort(self.dst, kind="stable"))
+                self.first_of = np.searchsorted(self.dst[self.by_stroke],
+                                                np.arange(len(self.live) + 1))
+                self.seen = len(self.picks)
             return
         lo = xy.min(axis=0)
         span = xy.max(axis=0) - lo
@@ -924,8 +934,23 @@ class _Remaining:
         if self.grid is None or 2 * left < self.in_grid:
             self._build(left)
         if self.direct:
-            d2 = (self.dx - x) ** 2 + (self.dy - y) ** 2
-            d2[~self.live[self.dst]] = np.inf
+            if self.picks is None:
+                d2 = (self.dx - x) ** 2 + (self.dy - y) ** 2
+                d2[~self.live[self.dst]] = np.inf
+                return int(self.ids[int(d2.argmin())])
+            if len(self.picks) > self.seen:
+                drawn = self.stroke[np.asarray(self.picks[self.seen:], dtype=np.int64)]
+                self.seen = len(self.picks)
+                a, b = self.first_of[drawn], self.first_of[drawn + 1]
+                size = b - a
+                at = self.by_stroke[np.repeat(a - (np.cumsum(size) - size), size)
+                                    + np.arange(int(size.sum()))]
+                self.dx[at] = np.inf
+            d2 = self.dx - x
+            d2 *= d2
+            dy = self.dy - y
+            dy *= dy
+            d2 += dy
             return int(self.ids[int(d2.argmin())])
         x0g, y0g, cell, nx, ny = self.grid
         cx = min(max(int((x - x0g) // cell), 0), nx - 1)
