@@ -199,12 +199,14 @@ def spot_section():
     starts = rng.uniform(-50, 50, (10_000, 2))
     ends = starts + rng.uniform(-3, 3, (10_000, 2))
     tour_order(starts[:100], ends[:100])              # imports paid before timing
-    best = math.inf
-    for _ in range(3):
+    times = []
+    for _ in range(7):      # (these machines' timings swing by tens of per cent: best of 7)
         t0 = time.perf_counter()
         tour_order(starts, ends)
-        best = min(best, time.perf_counter() - t0)
-    print(f"  ordering 10,000 strokes (tour): {best:.3f} s (best of 3)")
+        times.append(time.perf_counter() - t0)
+    best = min(times)
+    print(f"  ordering 10,000 strokes (tour): {best:.3f} s (best of 7; median "
+          f"{sorted(times)[3]:.3f} s)")
     targets.append(("ordering 10,000 strokes", "<= 0.2 s", f"{best:.3f} s", best <= 0.2))
     return targets, info
 
