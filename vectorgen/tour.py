@@ -1457,6 +1457,13 @@ def _chains(pts, offs, inten, tol):
     two = np.flatnonzero(degree == 2)
     two = two[np.argsort(node[two], kind="stable")]
     partner[two[0::2]], partner[two[1::2]] = two[1::2], two[0::2]
+    if np.all((two[0::2] >> 1) == (two[1::2] >> 1)):
+        # no two strokes meet (at most a stroke's own ends, which close it): each stroke is
+        # its own chain, in drawing order
+        shut = np.zeros(len(line), dtype=bool)
+        shut[two[0::2] >> 1] = True
+        chains = [([i], [False], c) for i, c in zip(line.tolist(), shut.tolist())]
+        return sorted(singles + chains, key=lambda c: c[0][0]) if singles else chains
     partner = partner.tolist()
     line_l = line.tolist()
     used = bytearray(len(line))
