@@ -445,16 +445,17 @@ def main() -> int:
         # baseline uses, fails on an arc whose ends coincide in the default seed's drawing)
         vg_big = [sys.executable, "-m", "vectorgen", "render", str(big), "-o",
                   str(tmp / "vgbig.wav"), "--rate", str(RATE), "--channels", "3", "-q"]
-        t_vg_big = best_of(vg_big, n=2, env=env)
+        t_vg_big = best_of(vg_big, env=env)
         from scipy.io import wavfile
 
         n_big = len(wavfile.read(tmp / "vgbig.wav")[1])
         t_base_big = best_of([sys.executable, str(base), str(big), str(tmp / "basebig.wav"),
-                              str(RATE), str(n_big), str(steps_eq)], n=2, env=env)
+                              str(RATE), str(n_big), str(steps_eq)], env=env)
         t_floor = best_of([sys.executable, "-c", "import numpy"], env=env)
         t_imp_big = best_of([sys.executable, "-c", "import svgpathtools"], env=env)
         r_big = t_base_big / t_vg_big
-        print(f"\nwhole process, 50,000 segments ({n_big} samples): vectorgen {t_vg_big:.2f} s, "
+        print(f"\nwhole process, 50,000 segments ({n_big} samples; best of {REPEATS} runs each): "
+              f"vectorgen {t_vg_big:.2f} s, "
               f"baseline ({steps_eq} steps) {t_base_big:.2f} s: {r_big:.2f} x as fast")
         print(f"  the floor: interpreter + numpy {t_floor:.2f} s (both pay); importing "
               f"svgpathtools {t_imp_big:.2f} s (the baseline only: vectorgen reads SVG itself)")
