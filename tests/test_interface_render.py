@@ -88,6 +88,30 @@ def test_true_peak_stays_within_full_scale():
     assert np.abs(up2[8 * m:8 * m * (TILE - 1)]).max() > 1.01     # control: it overshoots
 
 
+def test_a_frame_too_fast_for_full_scale_backs_off_and_stays_within_it():
+    # 40 lines across 99.9 % of the usable area need more than the fastest writing speed for
+    # the 40 Hz refresh target; at that speed their ends ring beyond full scale through the
+    # interface's low-pass, so the renderer backs off to a speed whose frame stays within it.
+    # Reference: the frame tiled and 8x oversampled by scipy.signal.resample_poly (true peak
+    # as BS.1770-4 Annex 2 measures it, with 4x); the engine lets 0.2 % pass, resample_poly's
+    # passband ripple adds about 0.1 %
+    import warnings
+
+    prof = make_profile(output={"channels": 3})
+    w, h = prof.screen.half_extent
+    lines = [[(-0.999 * w, y), (0.999 * w, y)] for y in np.linspace(-0.999 * h, 0.999 * h, 40)]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = render(polylines(*lines), prof, rate=RATE, channels=3)
+    said = " ".join(str(c.message) for c in caught)
+    assert "the fastest writing speed that stays within full scale" in said, said
+    speed = frame.report(prof)["writing_speed_mm_per_s"]
+    assert prof.beam.writing_speed_mm_per_s < speed < prof.beam.max_writing_speed_mm_per_s
+    n = len(frame.signal)
+    up = sps.resample_poly(np.tile(frame.signal[:, :2].astype(float), (TILE, 1)), 8, 1, axis=0)
+    assert np.abs(up[8 * n:8 * n * (TILE - 1)]).max() <= 1.0 + 3.5e-3
+
+
 def test_frames_cost_little_for_band_limited_jumps():
     # the aim: about 20 % longer than one-sample jumps at most (the demo drawing and
     # text; the clock face, 77 short jumps between its ticks, measured 21 %)

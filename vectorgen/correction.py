@@ -214,7 +214,8 @@ def _where(plan, i: int) -> str:
 
 
 def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMap, rate: int,
-                true_peak: bool = False, drive: np.ndarray | None = None):
+                true_peak: bool = False, drive: np.ndarray | None = None,
+                fail_fast: bool = False):
     """The channel signal of a beam plan: correction, the stage chain, the full-scale check and
     the channel map. Returns (signal (n, channels) float32, peak |drive|, the final drive (n, 2)
     when it was made whole, else None, the true peak or None).
@@ -226,7 +227,9 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
     frame; a filtering stage sees the whole loop), or when a chunk comes out beyond full
     scale (to be refused, or clipped within the slack), the frame is done whole. Both give the
     same samples. `drive`: the final drive, already worked out and checked (it is not made
-    again)."""
+    again). `fail_fast`: for a frame that will be tried again slower when it fails, the chunked
+    path refuses at the first chunk beyond full scale (its sample peak or, with `true_peak`,
+    between its samples), with a short message, instead of finding the worst place."""
     if drive is not None or model.has_distortion or not chain.pointwise:
         return _whole(plan, model, chain, cmap, rate, true_peak, drive)
     n = plan.samples
@@ -257,6 +260,8 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
         d = wide[T:len(wide) - T]
         dlo, dhi = d.min(), d.max()
         if not (-1.0 <= dlo and dhi <= 1.0):
+            if fail_fast:
+                raise FullScaleError(f"drive {max(-dlo, dhi):.4f} is beyond full scale")
             return _whole(plan, model, chain, cmap, rate, true_peak)
         lo, hi = min(lo, dlo), max(hi, dhi)
         if true_peak and max(-dlo, dhi) > TP_SCREEN_CHUNK:
@@ -264,6 +269,8 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
             p, i, ax = inter_sample_peaks(d, halo)
             if p > tp:
                 tp, tp_at, tp_axis = p, c0 + i, ax
+                if fail_fast:
+                    _raise_true_peak(tp, tp_at, tp_axis, plan)
         cmap.write_xy(sig[c0:c1], d)
         if cmap.has_z:
             r0 = int(np.searchsorted(run_end, c0, side="right"))

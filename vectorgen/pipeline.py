@@ -516,6 +516,15 @@ class Renderer:
         nearest = np.where(np.isfinite(nearest), nearest, 0.0)
         return lit + int(np.sum(self.jumps.cost(nearest)))
 
+    def _retries_slower(self, plan) -> bool:
+        """Whether `frame` tries a plan that goes beyond full scale again at a lower writing
+        speed (the speed rose above the profile's for the refresh target) rather than refuse
+        it: its signal may then stop at the first place beyond full scale."""
+        if not self.auto_speed:
+            return False
+        speed = plan.drawn_length_mm / max(plan.moving_samples, 1) * self.rate
+        return speed > self.profile.beam.writing_speed_mm_per_s * 1.01
+
     def _signal(self, plan, notes, extra):
         """Balancing, correction, the stages, the checks and the channel map for a plan:
         (signal, peak |drive|, the final drive or None, the plan as played)."""
@@ -531,7 +540,7 @@ class Renderer:
                              f"shifts by ({shift[0]:.2f}, {shift[1]:.2f}) mm (balancing is off)")
         signal, peak, drive, made_tp = plan_signal(plan, self.model, self.chain, self.cmap,
                                                    self.rate, self.checks_true_peak and tp is None,
-                                                   final)
+                                                   final, fail_fast=self._retries_slower(plan))
         tp = made_tp if tp is None else tp
         if tp is not None:
             extra["true_peak"] = _r(tp)
