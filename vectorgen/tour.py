@@ -1504,6 +1504,43 @@ def _chains(pts, offs, inten, tol):
 
 
 def _joined(pts, offs, inten, chains):
+    """Pack the chains into strokes (see `_joined_all`). A stroke left as it was (one member,
+    forwards, not closed by the merge) is copied as a slice, consecutive ones as one; only the
+    joined chains are packed by `_joined_all`."""
+    simple = [len(c[0]) == 1 and not c[1][0] and not c[2] for c in chains]
+    if sum(simple) < len(chains) // 2:
+        return _joined_all(pts, offs, inten, chains)
+    other = [c for c, sm in zip(chains, simple) if not sm]
+    o_pts, o_offs, _o_inten, _ = _joined_all(pts, offs, inten, other)
+    pieces, counts = [], []
+    run_a = run_b = None                    # input strokes run_a .. run_b - 1, copied as one
+    j = 0
+    for c, sm in zip(chains, simple):
+        m = c[0][0]
+        if sm:
+            if run_b == m:
+                run_b = m + 1
+            else:
+                if run_a is not None:
+                    pieces.append(pts[offs[run_a]:offs[run_b]])
+                run_a, run_b = m, m + 1
+            counts.append(int(offs[m + 1] - offs[m]))
+            continue
+        if run_a is not None:
+            pieces.append(pts[offs[run_a]:offs[run_b]])
+            run_a = run_b = None
+        pieces.append(o_pts[o_offs[j]:o_offs[j + 1]])
+        counts.append(int(o_offs[j + 1] - o_offs[j]))
+        j += 1
+    if run_a is not None:
+        pieces.append(pts[offs[run_a]:offs[run_b]])
+    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    first = np.array([min(c[0]) for c in chains])
+    groups = [np.array(c[0], dtype=np.int64) for c in chains]
+    return np.concatenate(pieces), offsets, inten[first], groups
+
+
+def _joined_all(pts, offs, inten, chains):
     """Pack the chains into strokes: each member's points in its direction; where a member
     starts on the very point the previous one ended, that point once; a closed chain ends on
     its first point. All members at once: one index array into the input points."""
