@@ -130,17 +130,16 @@ class _LastInverse:
 
     def __init__(self, response):
         self.response = response            # response(f_hz) -> (m, 2) complex
-        self.key = None
-        self.value = None
+        self.entry = None                   # ((n, rate), 1 / H): one object, swapped whole
 
     def __call__(self, n: int, rate: int) -> np.ndarray:
         key = (int(n), int(rate))
-        found = self.value
-        if self.key != key or found is None:
+        entry = self.entry                  # (read once: another thread may swap it)
+        if entry is None or entry[0] != key:
             found = _safe_inverse(self.response(np.fft.rfftfreq(n, 1.0 / rate)))
             found.flags.writeable = False
-            self.key, self.value = key, found
-        return found
+            entry = self.entry = (key, found)
+        return entry[1]
 
 
 FAST_PRIMES = (2, 3, 5, 7, 11)
