@@ -96,6 +96,18 @@ def _tp_band() -> np.ndarray:
     return _TP_BAND
 
 
+def _loop_span(part, n: int, a: int, b: int) -> np.ndarray:
+    """Samples a .. b - 1 of a looping frame of n samples (a may be < 0, b > n: it wraps round,
+    as often as it takes), from `part(i, j)`, which gives samples i .. j - 1 for 0 <= i < j <= n."""
+    parts = []
+    while a < b:
+        i = a % n
+        j = min(n, i + (b - a))
+        parts.append(part(i, j))
+        a += j - i
+    return parts[0] if len(parts) == 1 else np.concatenate(parts)
+
+
 def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[float, int, int]:
     """The largest |value| of a looping frame's band-limited path between its samples, as a
     4x interpolator sees it (ITU-R BS.1770-4 Annex 2 measures true peak so). Returns (peak,
@@ -117,11 +129,9 @@ def inter_sample_peaks(drive: np.ndarray, halo: tuple | None = None) -> tuple[fl
     h1 = float(np.abs(h).sum(axis=0).max())
     B = TP_TAPS
     if halo is None:
-        if n >= TP_TAPS:
-            halo = (drive[-TP_TAPS:], drive[:TP_TAPS])
-        else:
-            rep = np.tile(drive, (TP_TAPS // n + 1, 1))
-            halo = (rep[-TP_TAPS:], rep[:TP_TAPS])
+        def part(i, j):
+            return drive[i:j]
+        halo = (_loop_span(part, n, -TP_TAPS, 0), _loop_span(part, n, n, n + TP_TAPS))
     # the chunk with its halo, and room after the last gap's taps for a whole block's window
     # (zeros, never a gap's tap)
     ext = np.concatenate([halo[0], drive, halo[1], np.zeros((B, drive.shape[1]))])
@@ -175,6 +185,10 @@ def check_true_peak(drive: np.ndarray, plan) -> float:
         peak, i, axis = inter_sample_peaks(drive)
     else:                   # a chunk at a time, each with the samples either side of it
         peak, i, axis = 0.0, 0, 0
+
+        def part(a, b):
+            return drive[a:b]
+
         for c0 in range(0, n, CHUNK):
             c1 = min(n, c0 + CHUNK)
             d = drive[c0:c1]
@@ -182,11 +196,8 @@ def check_true_peak(drive: np.ndarray, plan) -> float:
             if top <= TP_SCREEN_CHUNK:
                 p, j, ax = top, 0, 0
             else:
-                before = drive[c0 - T:c0] if c0 >= T else np.concatenate([drive[c0 - T:],
-                                                                          drive[:c0]])
-                after = drive[c1:c1 + T] if c1 + T <= n else np.concatenate(
-                    [drive[c1:], drive[:c1 + T - n]])
-                p, j, ax = inter_sample_peaks(d, (before, after))
+                halo = (_loop_span(part, n, c0 - T, c0), _loop_span(part, n, c1, c1 + T))
+                p, j, ax = inter_sample_peaks(d, halo)
             if p > peak:
                 peak, i, axis = p, c0 + j, ax
     _raise_true_peak(peak, i, axis, plan)
@@ -244,19 +255,10 @@ def plan_signal(plan, model: DeflectionModel, chain: StageChain, cmap: ChannelMa
     def drive(a, b):
         return chain.frame(model.drive_from_xy(*plan.positions(a, b)), rate)
 
-    def span(a, b):                     # samples a .. b - 1 of the loop, a may be < 0, b > n
-        parts = []
-        while a < b:
-            i = a % n
-            j = min(n, i + (b - a))
-            parts.append(drive(i, j))
-            a += j - i
-        return np.concatenate(parts)
-
     T = TP_TAPS if true_peak else 0     # each chunk with the samples either side of it
     for c0 in range(0, n, CHUNK):
         c1 = min(n, c0 + CHUNK)
-        wide = span(c0 - T, c1 + T) if T else drive(c0, c1)
+        wide = _loop_span(drive, n, c0 - T, c1 + T)
         d = wide[T:len(wide) - T]
         dlo, dhi = d.min(), d.max()
         if not (-1.0 <= dlo and dhi <= 1.0):
