@@ -456,14 +456,15 @@ class Renderer:
             extra["writing_speed_auto"] = True
         backed_off = None
         while True:
+            # a faster writing speed stops harder at stroke ends: a frame beyond full scale at
+            # a raised speed is tried again nearer the profile's (and may then fail fast)
+            speed = plan.drawn_length_mm / max(plan.moving_samples, 1) * self.rate
+            retry = auto and speed > self.profile.beam.writing_speed_mm_per_s * 1.01
             try:
-                signal, peak, drive, balanced = self._signal(plan, notes, extra)
+                signal, peak, drive, balanced = self._signal(plan, notes, extra, retry)
                 break
             except FullScaleError:
-                # a faster writing speed stops harder at stroke ends: back off towards the
-                # profile's speed before refusing
-                speed = plan.drawn_length_mm / max(plan.moving_samples, 1) * self.rate
-                if not auto or speed <= self.profile.beam.writing_speed_mm_per_s * 1.01:
+                if not retry:
                     raise
                 slower = max(self.profile.beam.writing_speed_mm_per_s, 0.8 * speed)
                 backed_off = slower
@@ -516,18 +517,11 @@ class Renderer:
         nearest = np.where(np.isfinite(nearest), nearest, 0.0)
         return lit + int(np.sum(self.jumps.cost(nearest)))
 
-    def _retries_slower(self, plan) -> bool:
-        """Whether `frame` tries a plan that goes beyond full scale again at a lower writing
-        speed (the speed rose above the profile's for the refresh target) rather than refuse
-        it: its signal may then stop at the first place beyond full scale."""
-        if not self.auto_speed:
-            return False
-        speed = plan.drawn_length_mm / max(plan.moving_samples, 1) * self.rate
-        return speed > self.profile.beam.writing_speed_mm_per_s * 1.01
-
-    def _signal(self, plan, notes, extra):
+    def _signal(self, plan, notes, extra, fail_fast: bool = False):
         """Balancing, correction, the stages, the checks and the channel map for a plan:
-        (signal, peak |drive|, the final drive or None, the plan as played)."""
+        (signal, peak |drive|, the final drive or None, the plan as played). `fail_fast`: a
+        plan tried again slower if it fails (`plan_signal` may stop at the first place beyond
+        full scale)."""
         final = tp = None
         if self.balancing:
             plan, final, tp = self._balanced(plan, notes, extra)
@@ -540,7 +534,7 @@ class Renderer:
                              f"shifts by ({shift[0]:.2f}, {shift[1]:.2f}) mm (balancing is off)")
         signal, peak, drive, made_tp = plan_signal(plan, self.model, self.chain, self.cmap,
                                                    self.rate, self.checks_true_peak and tp is None,
-                                                   final, fail_fast=self._retries_slower(plan))
+                                                   final, fail_fast)
         tp = made_tp if tp is None else tp
         if tp is not None:
             extra["true_peak"] = _r(tp)
