@@ -20,6 +20,7 @@ __all__ = ["COORD_LIMIT", "StrokeSet", "Strokes", "check_finite", "clean", "conc
 
 # Coordinates beyond this (in mm, or SVG user units before fitting) are refused as nonsense.
 COORD_LIMIT = 1e9
+LENGTH_CHUNK = 1 << 14      # segments measured at a time by Strokes.total_length
 
 
 class StrokeSet(Protocol):
@@ -91,7 +92,22 @@ class Strokes:
         return csum[ends] - csum[self.offsets[:-1]]
 
     def total_length(self) -> float:
-        return float(self.lengths().sum()) if self.count else 0.0
+        """Drawn length of all strokes, mm: LENGTH_CHUNK segments at a time (no frame-long
+        temporaries), the steps from one stroke's last point to the next one's first left out."""
+        pts = np.asarray(self.points, dtype=float)
+        between = np.asarray(self.offsets[1:-1]) - 1     # segment i runs from point i to i + 1
+        total = 0.0
+        for g0 in range(0, len(pts) - 1, LENGTH_CHUNK):
+            p = pts[g0:g0 + LENGTH_CHUNK + 1]
+            seg, dy = np.diff(p[:, 0]), np.diff(p[:, 1])
+            seg *= seg
+            dy *= dy
+            seg += dy
+            np.sqrt(seg, out=seg)
+            a, b = np.searchsorted(between, [g0, g0 + len(seg)])
+            seg[between[a:b] - g0] = 0.0
+            total += float(seg.sum())
+        return total
 
     def transformed(self, matrix: np.ndarray, offset=(0.0, 0.0)) -> "Strokes":
         """Affine map p -> matrix @ p + offset (matrix 2 x 2)."""

@@ -236,26 +236,9 @@ def check_frame_size(strokes, timing: Timing, target_samples: int | None = None)
             raise InputError(f"samples per frame must be at most {MAX_FRAME_SAMPLES} "
                              f"(frame_samples={target_samples})", parameter="frame_samples")
         return
-    pts = np.asarray(strokes.points, dtype=float)
-    offs = np.asarray(strokes.offsets)
-    total = 0.0
-    with np.errstate(over="ignore", invalid="ignore"):
-        # the drawn length, CHUNK segments at a time (no full-length temporaries), less the
-        # steps from one stroke's last point to the next one's first
-        def length(x, y):
-            x *= x
-            y *= y
-            x += y
-            return float(np.sqrt(x, out=x).sum())
-
-        for g0 in range(0, len(pts) - 1, CHUNK):
-            p = pts[g0:g0 + CHUNK + 1]
-            total += length(np.diff(p[:, 0]), np.diff(p[:, 1]))
-        if len(offs) > 2:
-            a, b = pts[offs[1:-1] - 1], pts[offs[1:-1]]
-            total -= length(b[:, 0] - a[:, 0], b[:, 1] - a[:, 1])
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
-        least = float(np.float64(max(total, 0.0)) / np.float64(timing.spacing_mm)) + strokes.count
+        total = strokes.packed().total_length()
+        least = float(np.float64(total) / np.float64(timing.spacing_mm)) + strokes.count
     if not least <= MAX_FRAME_SAMPLES:          # (NaN or inf too)
         need = (f"at least {least:.3g} samples, more than" if np.isfinite(least)
                 else "far more than")
@@ -321,7 +304,7 @@ def _densified(px, py, offs, most_mm: float):
         return px, py, offs
     # vertex i (a long segment's first) is followed by extra = parts - 1 new ones, evenly
     # along its segment; the work is over the vertices once and over the new ones
-    parts = np.maximum(np.ceil(seg[long] / most_mm).astype(np.int64), 1)
+    parts = np.ceil(seg[long] / most_mm).astype(np.int64)     # (1 where seg / most rounds to 1)
     extra = parts - 1
     shift = np.zeros(P, dtype=np.int64)
     shift[long + 1] = np.cumsum(extra)                  # new vertices before vertex i
