@@ -893,7 +893,7 @@ class _Remaining:
     equal distances go to the lowest candidate id. Once the dead are more than half of what
     was built, it is rebuilt from the live candidates only."""
 
-    def __init__(self, xy, ids, stroke, live, picks=None):
+    def __init__(self, xy, ids, stroke, live, picks):
         self.stroke = stroke
         self.live = live                      # (S,) bool, the walk's own: not drawn yet
         self.picks = picks                    # the walk's candidates picked so far (a list)
@@ -911,14 +911,13 @@ class _Remaining:
             self.grid = ()
             self.dx, self.dy = xy[:, 0].copy(), xy[:, 1].copy()
             self.dst = self.stroke[ids]
-            if self.picks is not None:
-                # where each stroke's candidates are (by stroke, in id order within it): a
-                # stroke drawn since is taken out by moving its candidates to infinity
-                self.by_stroke = (np.arange(n) if n < 2 or np.all(self.dst[1:] >= self.dst[:-1])
-                                  else np.argsort(self.dst, kind="stable"))
-                self.first_of = np.searchsorted(self.dst[self.by_stroke],
-                                                np.arange(len(self.live) + 1))
-                self.seen = len(self.picks)
+            # where each stroke's candidates are (by stroke, in id order within it): a stroke
+            # drawn since is taken out by moving its candidates to infinity
+            self.by_stroke = (np.arange(n) if n < 2 or np.all(self.dst[1:] >= self.dst[:-1])
+                              else np.argsort(self.dst, kind="stable"))
+            self.first_of = np.searchsorted(self.dst[self.by_stroke],
+                                            np.arange(len(self.live) + 1))
+            self.seen = len(self.picks)
             return
         lo = xy.min(axis=0)
         span = xy.max(axis=0) - lo
@@ -934,10 +933,6 @@ class _Remaining:
         if self.grid is None or 2 * left < self.in_grid:
             self._build(left)
         if self.direct:
-            if self.picks is None:
-                d2 = (self.dx - x) ** 2 + (self.dy - y) ** 2
-                d2[~self.live[self.dst]] = np.inf
-                return int(self.ids[int(d2.argmin())])
             if len(self.picks) > self.seen:
                 drawn = self.stroke[np.asarray(self.picks[self.seen:], dtype=np.int64)]
                 self.seen = len(self.picks)
