@@ -215,12 +215,15 @@ def _raise_true_peak(peak: float, i: int, axis: int, plan) -> None:
 def _where(plan, i: int) -> str:
     """Where sample i is, in the user's terms: the point and the stroke (or the jump)."""
     x, y = plan.positions(i, i + 1)
-    s = plan.stroke[i]
-    if s < 0:
-        nxt = plan.stroke[i:][plan.stroke[i:] >= 0]
-        what = "a blanked move" + (f" towards {plan.strokes.labels[nxt[0]]}" if nxt.size else "")
+    # the run sample i is in (runs: lit on stroke k, then blanked, in turn), found from the
+    # run lengths rather than a stroke index for every sample of the frame
+    run = int(np.searchsorted(np.cumsum(plan.runs), i, side="right"))
+    if run % 2:
+        lit_after = np.flatnonzero(plan.runs[run + 1::2] > 0)
+        what = "a blanked move" + (f" towards {plan.strokes.labels[(run + 1) // 2 + lit_after[0]]}"
+                                   if lit_after.size else "")
     else:
-        what = plan.strokes.labels[s]
+        what = plan.strokes.labels[run // 2]
     return f"at ({x[0]:.2f}, {y[0]:.2f}) mm in {what}"
 
 

@@ -18,6 +18,9 @@ The frame ends with the jump back to its first stroke, so frames repeat seamless
 
 from __future__ import annotations
 
+import functools
+from typing import NamedTuple
+
 import numpy as np
 
 from ..clip import check_drawing_size
@@ -109,26 +112,23 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         check_frame_size(strokes, timing, target_samples)
     strategy = ORDERINGS[ordering]
     jumps = timing.jumps if jumps is None else jumps
-    px, py, offs, stroke_intensity, drawn = (ordered if ordered is not None else
-                                             _ordered(strokes, strategy, jumps))
+    if ordered is None:
+        ordered = _ordered(strokes, strategy, jumps)
+    px, py, offs, stroke_intensity, drawn, kept = ordered
+    # what does not depend on the writing speed is worked out once per ordered frame and
+    # kept for every plan of it (a frame may be planned at several speeds), so nothing below
+    # writes into these arrays (they are not marked read-only: numpy's interp and others
+    # copy a read-only array on every call)
     if speed_cap is not None:
-        px, py, offs = _densified(px, py, offs, CAP_STEP_MM)
-        if callable(drawn):
-            drawn_offs = offs
-
-            def drawn(make=drawn):
-                st = make()
-                return Strokes(np.column_stack([px, py]), drawn_offs, st.intensity, st.labels)
-        else:
-            drawn = Strokes(np.column_stack([px, py]), offs, drawn.intensity, drawn.labels)
+        if "densified" not in kept:
+            kept["densified"] = _densified_frame(px, py, offs, drawn)
+        px, py, offs, drawn = kept["densified"]
     S = len(offs) - 1
     first, last = offs[:-1], offs[1:] - 1
-
-    is_last = np.zeros(len(px), dtype=bool)
-    is_last[last] = True
-    s, sharp = arc_axis(px, py, is_last, np.cos(np.radians(timing.corner_angle_deg)))
-    sharp[first] = False
-    sharp[last] = False
+    axis_key = ("axis", speed_cap is not None, float(timing.corner_angle_deg))
+    if axis_key not in kept:
+        kept[axis_key] = _frame_axis(px, py, first, last, timing.corner_angle_deg)
+    is_last, s, sharp, pz = kept[axis_key]
     lengths = s[last] - s[first]
 
     # Pieces between consecutive boundary vertices (first, sharp corners, last) of a stroke:
@@ -195,9 +195,9 @@ def plan_frame(strokes, timing: Timing, target_samples: int | None = None,
         raise InputError(f"one frame would take {n_total} samples ({n_total / timing.rate:.0f}"
                          f" s): raise the writing speed or draw less", parameter="speed")
 
-    layout, lit, runs = _blocks(s, px, py, first, last, a, piece_step, piece_n, piece_stroke,
-                                start_rep, piece_rep, move, settles, jump_from, jump_to, jumps,
-                                ramp)
+    layout, lit, runs = _blocks(s, px, py, pz, first, last, a, piece_step, piece_n,
+                                piece_stroke, start_rep, piece_rep, move, settles, jump_from,
+                                jump_to, jumps, ramp)
     return Plan(layout, lit, runs, drawn, stroke_intensity,
                 drawn_length_mm=float(lengths.sum()),
                 moving_samples=int(piece_n.sum()),
@@ -250,6 +250,21 @@ def check_frame_size(strokes, timing: Timing, target_samples: int | None = None)
                          parameter="speed")
 
 
+class Ordered(NamedTuple):
+    """A frame's strokes in drawing order (`order_frame`): the vertices x, y (contiguous),
+    the stroke offsets and intensities, the drawn strokes (a Strokes, or a function
+    that makes it once, only if asked for), and `kept`: what `plan_frame` worked out from them
+    that does not depend on the writing speed, for the next plan of the same frame (none of
+    these arrays is written to once made)."""
+
+    px: np.ndarray
+    py: np.ndarray
+    offsets: np.ndarray
+    intensity: np.ndarray
+    drawn: object
+    kept: dict
+
+
 def order_frame(strokes, ordering: str, jumps):
     """The strokes in drawing order, for `plan_frame(..., ordered=...)`: a frame planned at
     several writing speeds is ordered once (the order does not depend on the speed)."""
@@ -268,8 +283,8 @@ def _ordered(strokes, strategy, jumps):
     rotate = found[2] if len(found) > 2 else None
     if strategy is input_order:
         pts = strokes.points
-        return (np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
-                strokes.offsets, strokes.intensity, strokes)
+        return Ordered(np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
+                       strokes.offsets, strokes.intensity, strokes, {})
     if rotate is not None and np.any(rotate):
         from ..tour import rethread_ring
 
@@ -285,9 +300,38 @@ def _ordered(strokes, strategy, jumps):
     intensity = strokes.intensity[order]
     labels = strokes.labels
 
+    @functools.cache
     def drawn():
         return Strokes(np.column_stack([px, py]), offs, intensity, [labels[i] for i in order])
-    return px, py, offs, intensity, drawn
+    return Ordered(px, py, offs, intensity, drawn, {})
+
+
+def _frame_axis(px, py, first, last, corner_angle_deg: float):
+    """(is_last, s, sharp, pz) of an ordered frame's vertices: each stroke's last
+    vertex, the global arc-length axis, the sharp interior corners (not at stroke ends) and the
+    vertices as px + i py (for `Layout.positions`)."""
+    is_last = np.zeros(len(px), dtype=bool)
+    is_last[last] = True
+    s, sharp = arc_axis(px, py, is_last, np.cos(np.radians(corner_angle_deg)))
+    sharp[first] = False
+    sharp[last] = False
+    pz = np.empty(len(px), dtype=complex)
+    pz.real, pz.imag = px, py
+    return is_last, s, sharp, pz
+
+
+def _densified_frame(px, py, offs, drawn):
+    """(px, py, offs, drawn) of an ordered frame with its long segments cut (`_densified` at
+    CAP_STEP_MM), the drawn strokes (or the function that makes them, once) to match."""
+    px, py, offs = _densified(px, py, offs, CAP_STEP_MM)
+    if callable(drawn):
+        @functools.cache
+        def drawn(make=drawn):
+            st = make()
+            return Strokes(np.column_stack([px, py]), offs, st.intensity, st.labels)
+    else:
+        drawn = Strokes(np.column_stack([px, py]), offs, drawn.intensity, drawn.labels)
+    return px, py, offs, drawn
 
 
 def _densified(px, py, offs, most_mm: float):
@@ -403,8 +447,8 @@ def _ramped(piece_len, piece_n, a_piece, runs_on):
     return n, np.maximum(step, 0.0), (v_in, v_out, r_in.astype(float), r_out.astype(float))
 
 
-def _blocks(s, px, py, first, last, a, piece_step, piece_n, piece_stroke, start_rep, piece_rep,
-            move, settles, jump_from, jump_to, jumps, ramp=None):
+def _blocks(s, px, py, pz, first, last, a, piece_step, piece_n, piece_stroke, start_rep,
+            piece_rep, move, settles, jump_from, jump_to, jumps, ramp=None):
     """The frame's sample blocks in drawing order (per stroke a start block, its pieces, then
     its blanked jump) as a Layout, with the lit flags and the lit/blanked run lengths."""
     S = len(first)
@@ -440,6 +484,6 @@ def _blocks(s, px, py, first, last, a, piece_step, piece_n, piece_stroke, start_
     blank[moving] = jumps.path(jump_from, jump_to, move)
     blank[~moving] = np.repeat(jump_to, settles, axis=0)
     blank_x, blank_y = np.ascontiguousarray(blank[:, 0]), np.ascontiguousarray(blank[:, 1])
-    layout = Layout(s, px, py, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
+    layout = Layout(s, px, py, pz, blk_end - blk_size, blk_end, blk_move, blk_step, blk_base,
                     at, blank_x, blank_y, blk_ramp)
     return layout, lit, runs

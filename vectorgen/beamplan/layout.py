@@ -11,7 +11,6 @@ Blanked samples lie on the jumps instead (`at`, `blank_x`, `blank_y`).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import cached_property
 
 import numpy as np
 
@@ -72,6 +71,8 @@ class Layout:
     ----------
     s, px, py : (P,) arrays
         The axis and the vertices on it.
+    pz : (P,) complex array
+        The vertices as px + i py (one interpolation gives x and y: `positions`).
     start, end, move, step, base : (B,) arrays
         Block b covers samples start[b] .. end[b] - 1 at parameters
         base[b] + step[b] * min(k + 1, move[b]).
@@ -87,6 +88,7 @@ class Layout:
     s: np.ndarray
     px: np.ndarray
     py: np.ndarray
+    pz: np.ndarray
     start: np.ndarray
     end: np.ndarray
     move: np.ndarray
@@ -96,13 +98,6 @@ class Layout:
     blank_x: np.ndarray
     blank_y: np.ndarray
     ramp: tuple | None = None
-
-    @cached_property
-    def pz(self) -> np.ndarray:
-        """The vertices as px + i py (for `positions`), made on first use."""
-        z = np.empty(len(self.px), dtype=complex)
-        z.real, z.imag = self.px, self.py
-        return z
 
     def positions(self, c0: int, c1: int) -> tuple[np.ndarray, np.ndarray]:
         """x and y (mm) of samples c0 .. c1 - 1, by linear interpolation along the axis."""
