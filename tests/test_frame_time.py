@@ -150,3 +150,40 @@ def test_the_bound_is_not_met_by_a_frame_in_the_input_order(tmp_path):
     lit, jumps, strokes = lower_bound(data, profile)
     assert strokes == 24
     assert len(data) / (lit + jumps) > GOAL
+
+
+# --- blanked travel of the frame as drawn ----------------------------------------------------------
+
+def test_blanked_travel_as_drawn_is_at_most_085_of_greedy_on_150_scattered_strokes(tmp_path):
+    """The frame-time issue's goal, through the command line at the defaults (the tour then
+    minimises the jumps' time, shaped jumps at 48 kHz): the blanked travel of the frame in the
+    WAV (from each lit run's last point to the next one's first, the frame looping) against
+    the independent nearest-neighbour walk of test_tour (`reference_greedy`, scipy's cdist) on
+    the same strokes, seeds 100-105 as there."""
+    from test_tour import entry_exit, loop_jumps, reference_greedy, scattered
+
+    assert main(["init-profile", "-o", str(tmp_path / "p.toml")]) == 0
+    profile = tomllib.loads((tmp_path / "p.toml").read_text())
+    ratios = []
+    for seed in range(100, 106):
+        starts, ends, _ = scattered(150, seed)
+        starts, ends = starts - (50.0, 40.0), ends - (50.0, 40.0)     # centred on the screen
+        keep = np.all(np.abs(np.vstack([starts, ends])) < (49.0, 39.0), axis=1)
+        keep = keep[:150] & keep[150:]                  # nothing cut at the usable area's edge
+        starts, ends = starts[keep], ends[keep]
+        paths = "".join(f'<path d="M {a[0]:.4f} {-a[1]:.4f} L {b[0]:.4f} {-b[1]:.4f}" />'
+                        for a, b in zip(starts, ends))
+        svg = tmp_path / f"s{seed}.svg"
+        svg.write_text('<svg xmlns="http://www.w3.org/2000/svg" width="100mm" height="80mm" '
+                       f'viewBox="-50 -40 100 80" fill="none" stroke="black">{paths}</svg>')
+        wav = tmp_path / f"s{seed}.wav"
+        assert main(["render", str(svg), "--channels", "3", "-o", str(wav), "-q"]) == 0
+        data = wavfile.read(wav)[1].astype(float)
+        _lit, runs, _samples, travel = lit_runs_and_jumps(data, profile)
+        assert len(runs) == len(starts)
+        greedy = loop_jumps(*entry_exit(starts, ends, None,
+                                        *reference_greedy(starts, ends))).sum()
+        ratios.append(travel.sum() / greedy)
+    print("\nblanked travel as drawn / independent greedy, 150 scattered strokes:",
+          " ".join(f"{r:.3f}" for r in ratios))
+    assert max(ratios) <= 0.85

@@ -30,7 +30,7 @@ segments never change: only the order, the direction and the starting vertex of 
 The search stops when no move improves the tour, when its time budget is spent
 (`default_budget_s`: 15 ms + 16 us per stroke, the whole call included; the Python loop that
 applies moves checks the clock) or, if asked, after a given number of rounds or after a round
-that gained less than a given share of the cost (both fixed by the input alone). The result never costs more than the input order or the
+that gained less than a given share of the cost and of the length (both fixed by the input alone). The result never costs more than the input order or the
 nearest-neighbour tour: the search starts from the cheaper of the two and only takes moves that
 lower the cost, and the final tour is costed again from scratch and compared with both.
 
@@ -381,7 +381,8 @@ def greedy_tour(starts, ends, closed_rings=None, cost=None) -> Tour:
 
 
 def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
-              budget_s=None, max_rounds: int | None = None, min_gain: float = 0.0) -> Tour:
+              budget_s=None, max_rounds: int | None = None, min_gain: float = 0.0,
+              travel_cost: float = 0.0) -> Tour:
     """A short closed tour through the strokes: nearest neighbour, then 2-opt and Or-opt moves
     with free stroke direction and free entry vertex of closed strokes, within a time budget.
 
@@ -411,10 +412,16 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         math.inf``): the same input then always gives the same tour, whatever the machine's
         load (files and live output must agree sample for sample).
     min_gain : float, default 0
-        Also stop after a round that lowered the tour's cost by less than this share of what
-        it costs now (0.005: half a per cent): later rounds would gain less still. It depends
-        on the input only, so the same input still gives the same tour. 0: go on while any
-        move improves the tour.
+        Also stop after a round that lowered both the tour's cost and its jumps' length by
+        less than this share of what they are now (0.005: half a per cent): later rounds
+        would gain less still. It depends on the input only, so the same input still gives
+        the same tour. 0: go on while any move improves the tour.
+    travel_cost : float, default 0
+        While searching, each mm of a jump also costs this much (in `cost`'s units): with a
+        cost in time, the search then also shortens the blanked travel, trading at most this
+        much time for a mm. The tour returned is still the best by `cost` alone of the input
+        order, the nearest-neighbour tour and the search's result, so it never costs more than
+        either of the first two.
 
     Returns
     -------
@@ -426,7 +433,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
     InputError
         Arrays of the wrong shape or not finite, a ring that does not start and end at its
         stroke's first point, a cost that is not a non-decreasing function, budget_s <= 0,
-        min_gain < 0.
+        min_gain < 0, travel_cost < 0.
 
     Notes
     -----
@@ -459,6 +466,13 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
         raise InputError(f"budget_s must be > 0 (budget_s={budget_s})", parameter="budget_s")
     if not min_gain >= 0:
         raise InputError(f"min_gain must be >= 0 (min_gain={min_gain})", parameter="min_gain")
+    if not (travel_cost >= 0 and np.isfinite(travel_cost)):
+        raise InputError(f"travel_cost must be finite and >= 0 (travel_cost={travel_cost})",
+                         parameter="travel_cost")
+    search_fn = cost_fn
+    if travel_cost > 0 and cost_fn is not None:
+        def search_fn(d, w=float(travel_cost)):
+            return cost_fn(d) + w * np.asarray(d, dtype=np.float64)
     S = geo.S
     given = (np.arange(S), np.zeros(S, dtype=bool), np.zeros(S, dtype=np.int64))
     # one nearest-points query serves both phases
@@ -469,7 +483,7 @@ def plan_tour(starts, ends, closed_rings=None, cost=None, first_fixed=True,
     start = greedy if greedy_cost <= given_cost else given
     best, best_cost = start, min(greedy_cost, given_cost)
     if S >= 2:
-        search = _Search(geo, cost_fn, *start, fixed_rotation=0 if first_fixed else -1,
+        search = _Search(geo, search_fn, *start, fixed_rotation=0 if first_fixed else -1,
                          lists=lists)
         search.run(t0 + budget_s, max_rounds, min_gain)
         found = search.state()
@@ -1037,7 +1051,8 @@ class _Search:
         self.out_id = 2 * s + 1 - f
         nx, ny = np.empty_like(self.ix), np.empty_like(self.iy)
         nx[:-1], nx[-1], ny[:-1], ny[-1] = self.ix[1:], self.ix[0], self.iy[1:], self.iy[0]
-        self.J = self.C(np.hypot(self.ox - nx, self.oy - ny))
+        self.D = np.hypot(self.ox - nx, self.oy - ny)     # jump lengths (mm)
+        self.J = self.C(self.D)
 
     def _neighbour_lists(self):
         if self.lists is None or self.rotated_since_lists:
@@ -1055,7 +1070,7 @@ class _Search:
         self._layout()
         rebuilds = 0
         rounds = 0
-        before = float(np.sum(self.J))
+        before, before_mm = float(np.sum(self.J)), float(np.sum(self.D))
         while time.perf_counter() < deadline and (max_rounds is None or rounds < max_rounds):
             rounds += 1
             was_active = self.active.copy()
@@ -1063,10 +1078,12 @@ class _Search:
             if len(self.rings):
                 improved |= self._rotate_rings(was_active | self.active)
             if improved:
-                now = float(np.sum(self.J))
-                if before - now < min_gain * now:
+                # a round that shortened the jumps' travel by a share worth having goes on
+                # too: a cost that only tie-breaks on length (tour_order's) gains little cost
+                now, now_mm = float(np.sum(self.J)), float(np.sum(self.D))
+                if before - now < min_gain * now and before_mm - now_mm < min_gain * now_mm:
                     break
-                before = now
+                before, before_mm = now, now_mm
                 continue
             if self.rotated_since_lists and rebuilds < 3:
                 # closed strokes now start at other vertices: their neighbours are stale
