@@ -105,6 +105,8 @@ def test_a_frame_too_fast_for_full_scale_backs_off_and_stays_within_it():
         frame = render(polylines(*lines), prof, rate=RATE, channels=3)
     said = " ".join(str(c.message) for c in caught)
     assert "the fastest writing speed that stays within full scale" in said, said
+    # full scale, not the profile's fastest speed, held it down: a faster profile is no fix
+    assert "max_writing_speed_mm_per_s" not in said, said
     speed = frame.report(prof)["writing_speed_mm_per_s"]
     assert prof.beam.writing_speed_mm_per_s < speed < prof.beam.max_writing_speed_mm_per_s
     n = len(frame.signal)

@@ -125,6 +125,31 @@ def test_a_grid_step_too_small_for_forty_hertz_gets_the_warning_that_names_the_f
     assert "below the 40 Hz target" in err and "sample rate of 96000 Hz" in err
 
 
+def test_a_frame_of_seconds_gets_its_refresh_and_only_the_fixes_that_help(tmp_path, capsys):
+    """A frame of seconds (6,000 scattered dots, each dwelling 250 us): the warning gives its
+    refresh (rate / samples in the WAV, read with scipy) to two figures rather than rounding it
+    to 0, and every fix it names gives more than that."""
+    import re
+
+    rng = np.random.default_rng(3)
+    pts = rng.uniform((-45, -35), (45, 35), (6000, 2))
+    paths = "".join(f'<path d="M {x:.3f} {-y:.3f} h 0" />' for x, y in pts)
+    svg = tmp_path / "dots.svg"
+    svg.write_text('<svg xmlns="http://www.w3.org/2000/svg" width="100mm" height="80mm" '
+                   f'viewBox="-50 -40 100 80" fill="none" stroke="black" '
+                   f'stroke-linecap="round">{paths}</svg>')
+    wav, js = tmp_path / "d.wav", tmp_path / "d.json"
+    assert main(["render", str(svg), "--channels", "3", "-o", str(wav), "--report", str(js),
+                 "-q"]) == 0
+    hz, _rep = refresh_of(wav, js)
+    err = capsys.readouterr().err
+    assert hz < 1.0
+    assert f"refresh {hz:.2g} Hz is below the 40 Hz target" in err, err
+    assert "about 0 Hz" not in err
+    offered = [float(f) for f in re.findall(r"gives about ([0-9.]+) Hz", err)]
+    assert offered and all(f > hz for f in offered), (offered, hz)
+
+
 # --- calibration patterns ------------------------------------------------------------------------
 
 PATTERN_ARGS = {"grid": ["--sheet", "s.csv"], "box": ["--sheet", "s.csv"],

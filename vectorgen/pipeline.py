@@ -265,6 +265,12 @@ def _count(n: int, word: str) -> str:
     return f"{n} {word}{'' if n == 1 else 's'}"
 
 
+def _hz(f: float) -> str:
+    """A refresh for a warning: to 0.1 Hz, to two significant figures below 1 Hz (a frame of
+    seconds is not "about 0 Hz", nor 0.155 Hz "0.2")."""
+    return f"{f:.1f}" if f >= 0.995 else f"{f:.2g}"
+
+
 def report_line(rep: dict) -> str:
     """The one-line summary of a frame report."""
     if rep["drawn_length_mm"] == 0:
@@ -488,7 +494,7 @@ class Renderer:
                                   "the brightness low, a stationary spot burns the phosphor")
         if frame.refresh_hz < self.profile.beam.flicker_hz:
             frame.warnings.append(
-                f"refresh {frame.refresh_hz:.1f} Hz is below the {self.profile.beam.flicker_hz:g}"
+                f"refresh {_hz(frame.refresh_hz)} Hz is below the {self.profile.beam.flicker_hz:g}"
                 f" Hz flicker threshold: draw less, raise the writing speed, or set a refresh "
                 f"rate")
         for w in frame.warnings:
@@ -613,12 +619,17 @@ class Renderer:
         t_draw = plan.moving_samples / rate
         t_jump = plan.jump_samples / rate
         t_rest = plan.samples / rate - t_draw - t_jump
-        fixes = [f"a sample rate of {2 * rate} Hz gives about "
-                 f"{1 / (t_draw + t_rest + t_jump / 2):.0f} Hz (shaped jumps take half the time)"]
-        if self.speed_cap is None:
+        fixes = []
+        # (a fix is named only if it helps: by 2 % or more)
+        faster_rate = 1 / (t_draw + t_rest + t_jump / 2)
+        if faster_rate >= 1.02 * hz:
+            fixes.append(f"a sample rate of {2 * rate} Hz gives about {_hz(faster_rate)} Hz "
+                         f"(shaped jumps take half the time)")
+        faster_line = 1 / (t_draw / 2 + t_rest + t_jump)
+        # (not when full scale, not the profile's fastest speed, held the speed down)
+        if self.speed_cap is None and backed_off is None and faster_line >= 1.02 * hz:
             fixes.append(f"max_writing_speed_mm_per_s = {2 * b.max_writing_speed_mm_per_s:g} "
-                         f"gives about {1 / (t_draw / 2 + t_rest + t_jump):.0f} Hz (a dimmer "
-                         f"line)")
+                         f"gives about {_hz(faster_line)} Hz (a dimmer line)")
         lit = int(plan.lit.sum())
         dwell = lit - plan.moving_samples
         if dwell > 0.2 * plan.samples:
@@ -631,7 +642,7 @@ class Renderer:
         if backed_off is not None:
             limit = (f"{backed_off / 1000:.3g} m/s, the fastest writing speed that stays within "
                      f"full scale")
-        return (f"refresh {hz:.1f} Hz is below the {b.refresh_target_hz:g} Hz target even at "
+        return (f"refresh {_hz(hz)} Hz is below the {b.refresh_target_hz:g} Hz target even at "
                 f"{limit}: " + "; ".join(fixes))
 
     # -- the interface: true peak, balancing, Z timing ---------------------------------------
