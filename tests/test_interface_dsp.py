@@ -437,6 +437,38 @@ def test_compensated_balanced_frame_lands_on_the_drawing_through_a_10_hz_highpas
     assert np.allclose(stage.report()["dc_offset"], unbalanced.mean(axis=0))
 
 
+def test_ac_coupling_merged_with_a_lag_still_reports_its_offset_and_the_boost():
+    """The chain divides consecutive linear stages at once; the coupling's report then still
+    gives the frame's mean (numpy) and the peak boost of the whole division, computed here
+    by hand with numpy's FFT: each harmonic divided by jwRC / (1 + jwRC) (the RC high-pass)
+    and by 1 / (1 + jw tau) (a first-order lag), the DC term passed as it is."""
+    from vectorgen.response import LagCompensation, Response
+    from vectorgen.stages import StageChain
+
+    n, fc, tau = 960, 10.0, 300e-6
+    ph = 2 * np.pi * np.arange(n) / n
+    u = np.column_stack([0.3 * np.cos(ph) + 0.1 * np.sin(7 * ph) + 0.05,
+                         0.2 * np.sin(3 * ph) - 0.02])
+    chain = StageChain([ACCoupling(fc), LagCompensation(Response(tau_s=(tau, tau)))])
+    out = chain.frame(u, RATE)
+    w = 2 * np.pi * np.fft.rfftfreq(n, 1 / RATE)
+    rc = 1 / (2 * np.pi * fc)
+    h = np.ones_like(w, dtype=complex)
+    h[1:] = (1j * w[1:] * rc / (1 + 1j * w[1:] * rc)) / (1 + 1j * w[1:] * tau)
+    by_hand = np.fft.irfft(np.fft.rfft(u, axis=0) / h[:, None], n, axis=0)
+    assert np.allclose(out, by_hand, atol=1e-12)
+    rep = chain.report()["ac_coupling"]
+    assert np.allclose(rep["dc_offset"], u.mean(axis=0), atol=1e-15)
+    assert np.allclose(rep["peak_boost"], np.abs(by_hand).max(axis=0) / np.abs(u).max(axis=0),
+                       rtol=1e-12)
+    assert rep["peak_boost_with"] == ["response"]
+    # alone, the same stage reports its own division, with nothing merged
+    alone = ACCoupling(fc)
+    alone.frame(u, RATE)
+    assert "peak_boost_with" not in alone.report()
+    assert np.allclose(alone.report()["dc_offset"], u.mean(axis=0), atol=1e-15)
+
+
 def test_balance_dwell_worked_example_is_the_fewest_samples():
     # By hand: a sum of (30, -12) at reach 1 needs 30 samples at (-1, 0.4); 29 would need
     # |x| = 30/29 > 1.

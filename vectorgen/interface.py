@@ -305,20 +305,23 @@ class ACCoupling(LinearStage):
     def response(self, f_hz):
         return highpass_response(np.asarray(f_hz, dtype=float)[:, None], self.corner_hz)
 
-    def frame(self, drive, rate):
-        out = super().frame(drive, rate)
-        peak_in = np.abs(drive).max(axis=0)
-        peak_out = np.abs(out).max(axis=0)
+    def saw(self, drive, out, rate, merged=()):
+        peak_in = np.abs(drive).max(axis=0) if len(drive) else np.zeros(2)
+        peak_out = np.abs(out).max(axis=0) if len(out) else np.zeros(2)
         self._last = {
-            "dc_offset": np.asarray(drive, dtype=float).mean(axis=0).tolist(),
+            "dc_offset": np.asarray(drive, dtype=float).mean(axis=0).tolist()
+            if len(drive) else [0.0, 0.0],
             "peak_boost": np.divide(peak_out, peak_in, out=np.ones(2),
                                     where=peak_in > 0).tolist(),
         }
-        return out
+        if merged:
+            self._last["peak_boost_with"] = list(merged)
 
     def report(self):
-        """``corner_hz``; after a `frame`: ``dc_offset``, the frame's mean per axis (drive
-        units) that the coupling removes, and ``peak_boost``, |out|max / |in|max per axis."""
+        """``corner_hz``; after a frame: ``dc_offset``, the frame's mean per axis (drive
+        units) that the coupling removes, and ``peak_boost``, |out|max / |in|max per axis
+        (when the chain divided the frame by this stage and the next linear ones at once,
+        ``peak_boost_with`` names them: the boost is then the whole division's)."""
         return {"corner_hz": self.corner_hz.tolist(), **self._last}
 
 

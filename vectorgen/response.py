@@ -419,8 +419,9 @@ class LagCompensation(LinearStage):
     def response(self, f_hz):
         return self.model.gain(np.asarray(f_hz, dtype=float))
 
-    def saw(self, n, rate):
+    def saw(self, drive, out, rate, merged=()):
         # kept only for the report: the boost is worst at the frame's top harmonic
+        n = len(drive)
         self._top_hz = (n // 2) * rate / n if n > 0 else 0.0
 
     def report(self) -> dict:

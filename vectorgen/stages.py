@@ -179,16 +179,19 @@ class LinearStage(Stage):
         """(m, 2) complex gain of the hardware at the frequencies `f_hz` (m,)."""
         return np.ones((len(f_hz), 2), dtype=complex)
 
-    def saw(self, n: int, rate: int) -> None:
-        """Told of each looping frame (n samples at `rate`) this stage divides, alone or merged
-        with others (for its report)."""
+    def saw(self, drive: np.ndarray, out: np.ndarray, rate: int, merged=()) -> None:
+        """Told of each looping frame this stage divided (for its report): the drive it was
+        given and the result. `merged`: the names of the other stages it was divided together
+        with (the chain merges consecutive linear stages into one division); `out` is then
+        the merged division's result."""
 
     def frame(self, drive, rate):
-        self.saw(len(drive), rate)
         inverse = self.__dict__.get("_inverse")
         if inverse is None:
             inverse = self._inverse = _LastInverse(self.response)
-        return _times_spectrum(drive, inverse(len(drive), rate))
+        out = _times_spectrum(drive, inverse(len(drive), rate))
+        self.saw(drive, out, rate)
+        return out
 
     def hardware(self, drive, rate):
         return periodic_apply(drive, rate, self.response)
@@ -278,9 +281,10 @@ class StageChain:
                 if inverse is None:
                     inverse = self._inverses[key] = _LastInverse(
                         lambda f, g=tuple(group): _product(g, f))
+                out = _times_spectrum(drive, inverse(len(drive), rate))
                 for st in group:
-                    st.saw(len(drive), rate)
-                drive = _times_spectrum(drive, inverse(len(drive), rate))
+                    st.saw(drive, out, rate, tuple(o.name for o in group if o is not st))
+                drive = out
             else:
                 drive = group[0].frame(drive, rate)
         return drive
