@@ -16,6 +16,7 @@ __all__ = ["MAX_TURN_DEG", "SegmentTable", "bezier_points", "circle_points", "fl
 import numpy as np
 
 from .errors import InputError
+from .runs import concat_ranges
 
 MAX_TURN_DEG = 10.0
 MAX_CHORDS = 100_000        # per segment; more means the tolerance is absurd for the drawing
@@ -272,7 +273,7 @@ def flatten_table(table: SegmentTable, tol: float) -> tuple[np.ndarray, np.ndarr
                 x[last], y[last] = a[:, 7], a[:, 8]      # land exactly on each end point
             else:
                 x, y = _bezier_xy(rows[lo:hi], nk)
-            dest = np.repeat(dest_of[lo:hi] - (np.cumsum(nk) - nk), nk) + np.arange(len(x))
+            dest = concat_ranges(dest_of[lo:hi], nk)
             out[dest, 0], out[dest, 1] = x, y
     return out, offsets
 

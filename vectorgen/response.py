@@ -32,6 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import FullScaleError, InputError, ProfileError, VectorgenWarning
+from .runs import run_ranks
 from .stages import LinearStage, register_stage
 
 __all__ = ["Response", "LagCompensation", "fastest_jump", "fastest_jump_xy", "jump_paths",
@@ -645,9 +646,9 @@ def jump_paths(x0, x1, tau_s, drive_limit, rate, tol,
                        dtype=np.int64).reshape(x0.shape)
     n = count if samples is None else np.broadcast_to(np.asarray(samples, dtype=np.int64),
                                                       x0.shape)
-    J, N = len(x0), int(n.sum())
+    J = len(x0)
     j = np.repeat(np.arange(J), n)
-    k = np.arange(N) - np.repeat(np.cumsum(n) - n, n)       # sample of its jump, from 0
+    k = run_ranks(n)                                       # sample of its jump, from 0
     x = x1[j]
     peak, hold, total, moving, lag = _jump_plan(x0, x1, tau, limit, tol, edge_s)
     live = np.flatnonzero(moving[j] & lag[j] & (k < count[j] - 1))   # the last is x1

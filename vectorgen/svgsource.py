@@ -47,6 +47,7 @@ from .pathdata import (PathTable, concat_tables, hull_points, select_paths, sele
                        transform_table)
 from .screen import fit_transform
 from .strokes import Strokes, check_finite, clean, repeated_points
+from .runs import concat_ranges
 from .svgdoc import Document, PathRef, read_document
 from .svgpathdata import tables_of
 from .svgvalues import IDENTITY, BadValue, compose, invert
@@ -484,8 +485,7 @@ def _dash_runs(pts: np.ndarray, offsets: np.ndarray, runs: np.ndarray, owner: np
     """
     shape_of = owner[runs]
     counts = offsets[runs + 1] - offsets[runs]
-    first = np.repeat(offsets[runs], counts)
-    point = first + np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
+    point = concat_ranges(offsets[runs], counts)
     xy = pts[point]
     inv = np.array([_inverse_or_nan(shapes[i].matrix) for i in shape_of.tolist()])
     a, b, c, d, e, f = (np.repeat(inv[:, k], counts) for k in range(6))

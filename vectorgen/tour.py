@@ -46,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
+from .runs import concat_ranges, run_ranks
 
 __all__ = ["Tour", "plan_tour", "greedy_tour", "merge_strokes", "rethread_ring",
            "default_budget_s", "RING_ENTRY_CANDIDATES", "NEIGHBOURS"]
@@ -118,7 +119,7 @@ def _knn(xy: np.ndarray, queries: np.ndarray, k: int, workers: int = 1):
         flat = np.flatnonzero(d2 <= kth[:, None])
         r, c = np.divmod(flat, n)                      # see `_nonzero_2d`
         per = np.bincount(r, minlength=m)
-        rank = np.arange(len(flat)) - np.repeat(np.cumsum(per) - per, per)
+        rank = run_ranks(per)
         dd = np.full((m, int(per.max())), np.inf)
         jj = np.full(dd.shape, n, dtype=np.int64)
         dd[r, rank], jj[r, rank] = d2.ravel()[flat], c
@@ -188,13 +189,12 @@ def _grid_knn(xy: np.ndarray, queries: np.ndarray, k: int):
         r0, r1 = np.maximum(qgy[todo] - R, 0), np.minimum(qgy[todo] + R, ny - 1)
         rows = r1 - r0 + 1
         t = np.repeat(np.arange(len(todo)), rows)                # one segment per row
-        row = np.repeat(r0, rows) + (np.arange(int(rows.sum())) - np.repeat(np.cumsum(rows)
-                                                                            - rows, rows))
+        row = concat_ranges(r0, rows)
         a, b = start[row * nx + c0[t]], start[row * nx + c1[t] + 1]
         size = b - a
         per_q = np.bincount(t, weights=size, minlength=len(todo)).astype(np.int64)
         qi = np.repeat(t, size)
-        cand = np.repeat(a - (np.cumsum(size) - size), size) + np.arange(int(size.sum()))
+        cand = concat_ranges(a, size)
         d2 = (sx[cand] - qx[todo][qi]) ** 2 + (sy[cand] - qy[todo][qi]) ** 2
         idx = o[cand]
         # the candidates of each query in a row of a padded block, its k nearest by partition
@@ -791,7 +791,7 @@ def _ring_candidates(geo: _Geometry):
     m[has_ring] = geo.ring_start[rs + 1] - geo.ring_start[rs]
     k = np.minimum(m, RING_ENTRY_CANDIDATES)
     rep = np.repeat(np.arange(len(c)), k)
-    j = np.arange(len(rep)) - np.repeat(np.cumsum(k) - k, k)
+    j = run_ranks(k)
     vert = (j * m[rep]) // k[rep]
     cxy = geo.A[c][rep].copy()
     ring = geo.ring_of[c][rep]
@@ -952,8 +952,7 @@ class _Remaining:
                 self.seen = len(self.picks)
                 a, b = self.first_of[drawn], self.first_of[drawn + 1]
                 size = b - a
-                at = self.by_stroke[np.repeat(a - (np.cumsum(size) - size), size)
-                                    + np.arange(int(size.sum()))]
+                at = self.by_stroke[concat_ranges(a, size)]
                 self.dx[at] = np.inf
             d2 = self.dx - x
             d2 *= d2
@@ -974,7 +973,7 @@ class _Remaining:
             tot = int(lens.sum())
             whole = c0 == 0 and r0 == 0 and c1 == nx - 1 and r1 == ny - 1
             if tot:
-                idx = np.repeat(a - (np.cumsum(lens) - lens), lens) + np.arange(tot)
+                idx = concat_ranges(a, lens)
                 idx = idx[self.live[self.gst[idx]]]
                 if len(idx):
                     d2 = (self.gx_[idx] - x) ** 2 + (self.gy_[idx] - y) ** 2
@@ -1570,7 +1569,7 @@ def _joined_all(pts, offs, inten, chains):
     drop = ~lead & np.all(pts[first_v] == pts[prev_last], axis=1)
     keep = (offs[M + 1] - offs[M]) - drop
     rep = np.repeat(np.arange(len(M)), keep)
-    k = np.arange(int(keep.sum())) - np.repeat(np.cumsum(keep) - keep, keep) + drop[rep]
+    k = run_ranks(keep) + drop[rep]
     idx = first_v[rep] + k * step[rep]
     per_chain = np.bincount(chain_of, weights=keep, minlength=len(chains)).astype(np.int64)
     ends_at = np.cumsum(per_chain)

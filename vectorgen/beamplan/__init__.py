@@ -25,6 +25,7 @@ import numpy as np
 
 from ..clip import check_drawing_size
 from ..errors import InputError
+from ..runs import run_ranks
 from ..strokes import Strokes
 from .budget import apportion, piece_steps
 from .dwell import dwells, turn_deg
@@ -358,7 +359,7 @@ def _densified(px, py, offs, most_mm: float):
     nx, ny = np.empty(total), np.empty(total)
     nx[new_index], ny[new_index] = px, py
     seg_of = np.repeat(np.arange(len(long)), extra)
-    k = np.arange(len(seg_of)) - np.repeat(np.cumsum(extra) - extra, extra) + 1
+    k = run_ranks(extra) + 1
     frac = k / parts[seg_of]
     a = long[seg_of]
     at = new_index[a] + k
@@ -477,7 +478,7 @@ def _blocks(s, px, py, pz, first, last, a, piece_step, piece_n, piece_stroke, st
     # Blanked samples: the jump's move (the jump model's path), then the settle at the
     # destination.
     blank_total = int(blank_size.sum())
-    kb = np.arange(blank_total) - np.repeat(np.cumsum(blank_size) - blank_size, blank_size)
+    kb = run_ranks(blank_size)
     at = np.repeat(np.cumsum(runs)[1::2] - blank_size, blank_size) + kb
     moving = kb < np.repeat(move, blank_size)
     blank = np.empty((blank_total, 2))

@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..runs import run_ranks
+
 __all__ = ["StraightJumps", "ShapedJumps", "LagJumps", "JUMP_TOL_MM"]
 
 JUMP_TOL_MM = 0.07      # largest error a jump may add to a lit sample (the goal is 0.1 mm)
@@ -76,7 +78,7 @@ class StraightJumps:
     def path(self, jump_from: np.ndarray, jump_to: np.ndarray, move: np.ndarray) -> np.ndarray:
         """(sum(move), 2) spot positions (mm) of every jump's move samples, jump by jump; the
         last sample of each move is its destination."""
-        k = np.arange(int(move.sum())) - np.repeat(np.cumsum(move) - move, move)
+        k = run_ranks(move)
         frac = self.fractions(k, np.repeat(move, move))[:, None]
         a = np.repeat(jump_from, move, axis=0)
         return a + (np.repeat(jump_to, move, axis=0) - a) * frac
@@ -254,7 +256,7 @@ class LagJumps(StraightJumps):
             xy = self.model.drive_to_mm(u)
         else:
             j = np.repeat(np.arange(len(n)), n)
-            k = np.arange(int(n.sum())) - np.repeat(np.cumsum(n) - n, n)
+            k = run_ranks(n)
             f = (1.0 - np.cos(np.pi * (k + 1) / n[j])) / 2.0
             xy = pa[j] + (pb - pa)[j] * f[:, None]
         xy[np.cumsum(n) - 1] = pb          # land exactly where the next stroke starts
