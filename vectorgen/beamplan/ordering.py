@@ -169,8 +169,15 @@ def tour_order(starts: np.ndarray, ends: np.ndarray, jump_cost=None, strokes=Non
         # a jump model's times are whole samples, so many tours tie, and the least travel
         # among them is the one to draw (less slewing of the deflection for nothing). The
         # length term stays below TIE_BREAK samples over the whole tour (no jump is longer
-        # than the diagonal of the points' bounding box), so it never buys length with time.
-        pts = np.vstack([np.asarray(starts, dtype=float), np.asarray(ends, dtype=float)])
+        # than the diagonal of the bounding box of every point a jump may start or end at:
+        # the strokes' ends and the closed strokes' vertices), so it never buys length with
+        # time.
+        starts, ends = np.asarray(starts, dtype=float), np.asarray(ends, dtype=float)
+        pts = [starts, ends]
+        if strokes is not None:
+            pts += [np.asarray(strokes[i], dtype=float).reshape(-1, 2)
+                    for i in np.flatnonzero(np.all(starts == ends, axis=1)).tolist()]
+        pts = np.vstack(pts)
         diag = float(np.hypot(*(pts.max(axis=0) - pts.min(axis=0))))
         per_mm = TIE_BREAK / (len(starts) * diag) if diag > 0 else 0.0
 
