@@ -95,9 +95,10 @@ def spot_section():
                             tp <= 1.002))
     from pathlib import Path
 
+    default = _render(text)[0]          # the built-in profile (its screen, for the drawings)
     demo = svg_to_strokes(str(Path(__file__).resolve().parent.parent / "vectorgen" / "data" /
-                              "demo.svg"), _render(text)[0].screen)
-    clock = shape("clock", _render(text)[0].screen)
+                              "demo.svg"), default.screen)
+    clock = shape("clock", default.screen)
     for label, drawing in (("demo", demo), ("clock face", clock), ("text", text)):
         a = _render(drawing, speed=20000.0)[1].samples
         b = _render(drawing, output={"band_limited": False}, speed=20000.0)[1].samples
@@ -109,7 +110,6 @@ def spot_section():
     # the writing speed following the refresh target
     from calibration.patterns import make_pattern
 
-    default = _render(text)[0]
     for label, drawing in (("demo", demo), ("clock face", clock),
                            ("test grid (shape)", shape("grid", default.screen)),
                            ("test grid (pattern)", make_pattern("grid", default).strokes)):
