@@ -152,7 +152,7 @@ def test_the_bound_is_not_met_by_a_frame_in_the_input_order(tmp_path):
     assert len(data) / (lit + jumps) > GOAL
 
 
-# --- blanked travel of the frame as drawn ----------------------------------------------------------
+# --- blanked travel of the frame as drawn ---------------------------------------------------------
 
 def test_blanked_travel_as_drawn_is_at_most_085_of_greedy_on_150_scattered_strokes(tmp_path):
     """The frame-time issue's goal, through the command line at the defaults (the tour then

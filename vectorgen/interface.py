@@ -306,8 +306,8 @@ class ACCoupling(LinearStage):
         return highpass_response(np.asarray(f_hz, dtype=float)[:, None], self.corner_hz)
 
     def saw(self, drive, out, rate, merged=()):
-        # a column at a time: a reduction down the short rows of an (n, 2) array costs
-        # twenty times as much here
+        # a column at a time: a reduction over axis 0 of an (n, 2) array (down its long
+        # columns, strided) costs twenty times as much here
         n = len(drive)
 
         def peak(a):

@@ -30,9 +30,11 @@ segments never change: only the order, the direction and the starting vertex of 
 The search stops when no move improves the tour, when its time budget is spent
 (`default_budget_s`: 15 ms + 16 us per stroke, the whole call included; the Python loop that
 applies moves checks the clock) or, if asked, after a given number of rounds or after a round
-that gained less than a given share of the cost and of the length (both fixed by the input alone). The result never costs more than the input order or the
-nearest-neighbour tour: the search starts from the cheaper of the two and only takes moves that
-lower the cost, and the final tour is costed again from scratch and compared with both.
+that gained less than a given share of the cost and of the length (both fixed by the input
+alone). The result never costs more than the input order or the nearest-neighbour tour: the
+search starts from the cheaper of the two and only takes moves that lower the cost (with a
+`travel_cost`, the cost plus that much per mm of jump), and the final tour is costed again from
+scratch, by the cost alone, and compared with both.
 
 `merge_strokes` joins strokes whose ends meet into one stroke before ordering, which removes
 their jump and two end dwells.
@@ -1078,7 +1080,8 @@ class _Search:
                 improved |= self._rotate_rings(was_active | self.active)
             if improved:
                 # a round that shortened the jumps' travel by a share worth having goes on
-                # too: a cost that only tie-breaks on length (tour_order's) gains little cost
+                # too: a cost that counts the length little or not at all (a jump's time)
+                # gains little cost while the travel still falls
                 now, now_mm = float(np.sum(self.J)), float(np.sum(self.D))
                 if before - now < min_gain * now and before_mm - now_mm < min_gain * now_mm:
                     break

@@ -102,8 +102,8 @@ class Plan:
         n = self.samples
         end = lay.end.copy()
         end[-1] += E
-        layout = Layout(lay.s, lay.px, lay.py, lay.pz, lay.start, end, lay.move, lay.step, lay.base,
-                        np.concatenate([lay.at, np.arange(n, n + E)]),
+        layout = Layout(lay.s, lay.px, lay.py, lay.pz, lay.start, end, lay.move, lay.step,
+                        lay.base, np.concatenate([lay.at, np.arange(n, n + E)]),
                         np.concatenate([lay.blank_x, points_mm[:, 0]]),
                         np.concatenate([lay.blank_y, points_mm[:, 1]]), lay.ramp)
         runs = self.runs.copy()
